@@ -1,0 +1,91 @@
+"""``cablekit points DESIGN.toml POINTS.csv [-o OUT.csv]``: lengths, counts and tensions per pose."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..cli import InputError
+from ..design import load_design
+from ..kinematics import cable_lengths, lengths_to_counts
+from ..statics import tensions_at, tension_limits
+from ..tables import Column, read_table, write_table
+
+NAME = "points"
+HELP = "cable lengths, encoder counts and tensions for the poses in a CSV"
+DESCRIPTION = ("Reads a CSV with columns 'x [unit]', 'y [unit]', 'z [unit]' (and 'roll [deg]', 'pitch [deg]', "
+               "'yaw [deg]' for rigid platforms) and writes, per pose, each cable's length, its change from home "
+               "in encoder counts, the tensions, and whether the pose is feasible (or why not).")
+
+
+def add_arguments(p) -> None:
+    p.add_argument("design", metavar="DESIGN.toml")
+    p.add_argument("points", metavar="POINTS.csv")
+    p.add_argument("-o", "--output", metavar="OUT.csv", help="write the table here (default: print a summary only)")
+
+
+def pose_columns(kind: str) -> list[Column]:
+    cols = [Column("x", "length"), Column("y", "length"), Column("z", "length")]
+    if kind == "rigid":
+        cols += [Column("roll", "angle", required=False), Column("pitch", "angle", required=False),
+                 Column("yaw", "angle", required=False)]
+    return cols
+
+
+def read_poses(design, path) -> np.ndarray:
+    table = read_table(path, pose_columns(design.platform.kind) + [Column("label", "text", required=False)])
+    n = len(table)
+    cols = [table.columns["x"], table.columns["y"], table.columns["z"]]
+    if design.dof == 6:
+        cols += [table.columns.get(k, np.zeros(n)) for k in ("roll", "pitch", "yaw")]
+    return np.column_stack(cols)
+
+
+def pose_report(design, poses):
+    """Per pose: lengths (N, m), counts (N, m), TensionResult and a reason text (N,)."""
+    L = cable_lengths(design, poses)
+    counts = np.rint(lengths_to_counts(design, L)).astype(np.int64)
+    res = tensions_at(design, poses)
+    lim = tension_limits(design)
+    names = design.cable_names
+    reasons = []
+    for k in range(len(poses)):
+        if res.feasible[k]:
+            reasons.append("feasible")
+            continue
+        t = res.tensions[k]
+        if not np.all(np.isfinite(t)):
+            reasons.append("no tension balances the load here (outside the wrench-feasible workspace)")
+            continue
+        i = int(res.limiting_cable[k])
+        if t[i] < lim.t_min[i]:
+            reasons.append(f"cable {names[i]} slack ({t[i]:.1f} N < {lim.t_min[i]:.1f} N)")
+        else:
+            reasons.append(f"cable {names[i]} over its {lim.limited_by[i]} limit ({t[i]:.1f} N > {lim.t_max[i]:.1f} N)")
+    return L, counts, res, reasons
+
+
+def run(args) -> int:
+    d = load_design(args.design)
+    poses = read_poses(d, args.points)
+    frame_lo = d.exits.min(axis=0)
+    frame_hi = d.exits.max(axis=0)
+    for k, pose in enumerate(poses):
+        if np.any(np.min(np.linalg.norm(d.exits - pose[:3], axis=1)) < 1e-9):
+            raise InputError(f"{args.points} row {k + 1}: pose coincides with an exit point")
+    del frame_lo, frame_hi
+    L, counts, res, reasons = pose_report(d, poses)
+    names = d.cable_names
+    n_ok = int(np.sum(res.feasible))
+    print(f"{d.meta.name}: {len(poses)} poses, {n_ok} feasible, {len(poses) - n_ok} not ({res.method})")
+    for k, r in enumerate(reasons):
+        if r != "feasible":
+            print(f"  row {k + 1}: {r}")
+    if args.output:
+        pose_names = ["x [m]", "y [m]", "z [m]"] + (["roll [rad]", "pitch [rad]", "yaw [rad]"] if d.dof == 6 else [])
+        header = (pose_names + [f"length {n} [m]" for n in names] + [f"counts {n}" for n in names]
+                  + [f"tension {n} [N]" for n in names] + ["margin [N]", "feasible", "reason"])
+        rows = [list(poses[k]) + list(L[k]) + [int(c) for c in counts[k]] + list(res.tensions[k])
+                + [float(res.margin[k]), "yes" if res.feasible[k] else "no", reasons[k]] for k in range(len(poses))]
+        write_table(args.output, header, rows, comment=f"cablekit points: {d.meta.name}")
+        print(f"wrote {args.output}")
+    return 0

@@ -1,0 +1,298 @@
+"""Inverse and forward kinematics on arrays (poses on the leading axis).
+
+All functions take a :class:`~cablekit.design.Design` for the rig's shape and accept
+keyword-only ``exits=`` / ``attachments=`` overrides (arrays of shape (m, 3) or broadcastable
+(N, m, 3)) so that perturbed rigs (calibration, Monte Carlo) use the same code.
+
+Poses: shape (N, 3) for a point platform, (N, 6) for a rigid one (see
+:mod:`cablekit.symbolic` for the orientation convention).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .symbolic import numeric
+
+__all__ = [
+    "as_poses",
+    "cable_vectors",
+    "cable_lengths",
+    "unit_vectors",
+    "structure_matrix",
+    "length_jacobian",
+    "parameter_jacobians",
+    "ParameterJacobians",
+    "home_lengths",
+    "length_per_count",
+    "lengths_to_counts",
+    "counts_to_lengths",
+    "FKResult",
+    "forward_kinematics",
+    "trilaterate",
+    "KinematicsError",
+]
+
+CHUNK = 4096  # poses per evaluation chunk: keeps temporaries in cache (see README benchmarks)
+
+
+class KinematicsError(ValueError):
+    """Lengths or poses that no rig configuration matches."""
+
+
+def as_poses(design, poses) -> np.ndarray:
+    """Check and return poses as a float array of shape (N, n)."""
+    n = design.dof
+    arr = np.asarray(poses, dtype=float)
+    if arr.ndim == 1:
+        arr = arr[None, :]
+    if arr.ndim != 2 or arr.shape[1] != n:
+        raise ValueError(f"poses must have shape (N, {n}) for a {design.platform.kind} platform, got {arr.shape}")
+    if not np.all(np.isfinite(arr)):
+        bad = int(np.argwhere(~np.isfinite(arr))[0, 0])
+        raise ValueError(f"pose {bad} is not finite: {arr[bad].tolist()}")
+    return arr
+
+
+def _geometry(design, exits, attachments):
+    a = design.exits if exits is None else np.asarray(exits, dtype=float)
+    b = design.attachments if attachments is None else np.asarray(attachments, dtype=float)
+    return a, b
+
+
+def _evaluate(design, what: str, poses, exits=None, attachments=None) -> np.ndarray:
+    """Evaluate a generic-cable function for every pose and cable: shape (N, m, k)."""
+    q = as_poses(design, poses)
+    a, b = _geometry(design, exits, attachments)
+    fn = numeric(design.platform.kind, what)
+    n = q.shape[1]
+    N = q.shape[0]
+    m = design.m
+    k = len(fn.output_names)
+    per_pose_geometry = a.ndim == 3 or b.ndim == 3
+    out = np.empty((N, m, k))
+    for s in range(0, N, CHUNK):
+        e = min(N, s + CHUNK)
+        qc = q[s:e, None, :]  # (c, 1, n)
+        ac = a[s:e] if a.ndim == 3 else a[None]
+        bc = b[s:e] if b.ndim == 3 else b[None]
+        args = [qc[..., j] for j in range(n)] + [ac[..., j] for j in range(3)] + [bc[..., j] for j in range(3)]
+        out[s:e] = np.broadcast_to(fn(*args), (e - s, m, k))
+    del per_pose_geometry
+    return out
+
+
+def cable_vectors(design, poses, *, exits=None, attachments=None) -> np.ndarray:
+    """Cable vectors ``l_i = a_i - p - R b_i`` [m], shape (N, m, 3)."""
+    return _evaluate(design, "vector", poses, exits, attachments)
+
+
+def cable_lengths(design, poses, *, exits=None, attachments=None) -> np.ndarray:
+    """Straight-line cable lengths ``L_i`` [m] (inverse kinematics), shape (N, m)."""
+    return _evaluate(design, "length", poses, exits, attachments)[..., 0]
+
+
+def unit_vectors(design, poses, *, exits=None, attachments=None) -> np.ndarray:
+    """Unit vectors ``u_i`` from the platform towards the exits, shape (N, m, 3)."""
+    return _evaluate(design, "unit", poses, exits, attachments)
+
+
+def structure_matrix(design, poses, *, exits=None, attachments=None) -> np.ndarray:
+    """Structure (wrench) matrix ``W`` with ``W t + w_ext = 0``, shape (N, n, m)."""
+    return np.swapaxes(_evaluate(design, "wrench", poses, exits, attachments), 1, 2)
+
+
+def length_jacobian(design, poses, *, exits=None, attachments=None) -> np.ndarray:
+    """``dL/dq`` [m/m, m/rad], shape (N, m, n)."""
+    return _evaluate(design, "jac_pose", poses, exits, attachments)
+
+
+@dataclass(frozen=True)
+class ParameterJacobians:
+    """Derivatives of the cable lengths with respect to design parameters.
+
+    exits : dL_i/da_i, shape (N, m, 3) [m/m]; cable i depends only on its own exit.
+    attachments : dL_i/db_i, shape (N, m, 3) [m/m] (zero for a point platform).
+    """
+
+    exits: np.ndarray
+    attachments: np.ndarray
+
+
+def parameter_jacobians(design, poses, *, exits=None, attachments=None) -> ParameterJacobians:
+    """Jacobians of the lengths with respect to exit and attachment points."""
+    return ParameterJacobians(
+        exits=_evaluate(design, "jac_exit", poses, exits, attachments),
+        attachments=_evaluate(design, "jac_attachment", poses, exits, attachments),
+    )
+
+
+# --------------------------------------------------------------------------------------
+# cable length <-> encoder counts
+# --------------------------------------------------------------------------------------
+def home_lengths(design) -> np.ndarray:
+    """Cable lengths at the home pose [m]: calibrated ``home_length`` where given, else IK."""
+    ik = cable_lengths(design, np.array(design.home_pose)[None, :])[0]
+    return np.array([e.home_length if e.home_length is not None else ik[i] for i, e in enumerate(design.frame.exits)])
+
+
+def length_per_count(design, *, drum_scale: float | np.ndarray = 1.0) -> np.ndarray:
+    """Cable length paid out per encoder count [m], shape (m,).
+
+    ``pi * (D_drum + d_rope) / (gear_ratio * lines * decoding)``: the rope's centreline sits
+    on the pitch diameter, drum plus one rope diameter (first layer).
+
+    References
+    ----------
+    Shigley's Mechanical Engineering Design, 10th ed., 2015, sec. 17-6 (wire rope: pitch
+    diameter of a sheave/drum is measured to the rope centreline).
+    """
+    d = design.cable.diameter
+    out = np.array([np.pi * (w.drum_diameter * drum_scale + d) / (w.gear_ratio * w.counts_per_motor_rev)
+                    for w in design.winches], dtype=float)
+    return out
+
+
+def lengths_to_counts(design, lengths, *, home=None) -> np.ndarray:
+    """Encoder counts from home for cable lengths (N, m): ``(L - L_home) / length_per_count``.
+
+    Positive counts pay cable out. Returns floats; round to the nearest count to command.
+    """
+    L = np.asarray(lengths, dtype=float)
+    h = home_lengths(design) if home is None else np.asarray(home, float)
+    return (L - h) / length_per_count(design)
+
+
+def counts_to_lengths(design, counts, *, home=None) -> np.ndarray:
+    h = home_lengths(design) if home is None else np.asarray(home, float)
+    return h + np.asarray(counts, float) * length_per_count(design)
+
+
+# --------------------------------------------------------------------------------------
+# forward kinematics
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class FKResult:
+    """Forward-kinematics answer.
+
+    poses : (N, n); residual : (N,) RMS of ``L(q) - L_given`` [m]; converged : (N,) bool;
+    iterations : int (Newton iterations used, 0 for closed form).
+    """
+
+    poses: np.ndarray
+    residual: np.ndarray
+    converged: np.ndarray
+    iterations: int
+
+
+def trilaterate(exits, lengths, *, gravity_direction=(0.0, 0.0, -1.0)) -> np.ndarray:
+    """Closed-form position of a point hanging on three cables.
+
+    Parameters
+    ----------
+    exits : array (3, 3) [m]
+    lengths : array (N, 3) [m]
+    gravity_direction : the solution on the side of the exit plane that gravity points to
+        (the hanging one) is returned.
+
+    Returns
+    -------
+    array (N, 3) [m]; rows whose spheres do not meet raise :class:`KinematicsError`.
+
+    Notes
+    -----
+    Classical three-sphere intersection: in a frame with ``a_1`` at the origin, ``a_2`` on the
+    x axis and ``a_3`` in the x-y plane, ``x = (L1^2 - L2^2 + d^2) / 2d``,
+    ``y = (L1^2 - L3^2 + i^2 + j^2) / 2j - i x / j``, ``z = +-sqrt(L1^2 - x^2 - y^2)``.
+    (Fang, S. "Trilateration", see also Manolakis, IEEE Trans. AES 32(4), 1996.)
+    """
+    a = np.asarray(exits, float)
+    L = np.atleast_2d(np.asarray(lengths, float))
+    ex = a[1] - a[0]
+    d = np.linalg.norm(ex)
+    ex = ex / d
+    i = ex @ (a[2] - a[0])
+    ey = a[2] - a[0] - i * ex
+    j = np.linalg.norm(ey)
+    if d < 1e-12 or j < 1e-12:
+        raise KinematicsError("the three exit points are collinear: the position is not determined")
+    ey = ey / j
+    ez = np.cross(ex, ey)
+    g = np.asarray(gravity_direction, float)
+    if ez @ g < 0:
+        ez = -ez  # choose the side gravity points to
+    L1, L2, L3 = L[:, 0], L[:, 1], L[:, 2]
+    x = (L1**2 - L2**2 + d**2) / (2 * d)
+    y = (L1**2 - L3**2 + i**2 + j**2) / (2 * j) - (i / j) * x
+    z2 = L1**2 - x**2 - y**2
+    tol = 1e-12 * np.maximum(1.0, L1**2)
+    if np.any(z2 < -tol):
+        bad = int(np.argmax(z2 < -tol))
+        raise KinematicsError(f"cable lengths {L[bad].tolist()} m are incompatible with the exit points "
+                              f"(row {bad}: the three spheres do not meet)")
+    z = np.sqrt(np.clip(z2, 0.0, None))
+    return a[0] + x[:, None] * ex + y[:, None] * ey + z[:, None] * ez
+
+
+def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=None, tol: float = 1e-12,
+                       max_iter: int = 50) -> FKResult:
+    """Poses that produce the given cable lengths.
+
+    A point platform on exactly three cables uses closed-form trilateration (the hanging
+    solution).  Otherwise damped Gauss-Newton on the symbolic length Jacobian (least squares
+    for m > n), vectorised over poses, starting from ``guess`` (default: the home pose).
+
+    Raises
+    ------
+    KinematicsError
+        When lengths are not finite or, for the closed form, incompatible. For the iterative
+        path, rows that do not converge are reported in ``converged`` and ``residual``.
+    """
+    L = np.atleast_2d(np.asarray(lengths, float))
+    m, n = design.m, design.dof
+    if L.shape[1] != m:
+        raise ValueError(f"lengths must have shape (N, {m}), got {L.shape}")
+    if not np.all(np.isfinite(L)) or np.any(L <= 0):
+        raise KinematicsError("cable lengths must be finite and positive")
+    a, b = _geometry(design, exits, attachments)
+    if design.platform.kind == "point" and m == 3 and a.ndim == 2:
+        p = trilaterate(a, L, gravity_direction=design.frame.gravity_direction)
+        res = np.sqrt(np.mean((cable_lengths(design, p, exits=a) - L) ** 2, axis=1))
+        return FKResult(poses=p, residual=res, converged=res < 1e-6, iterations=0)
+    N = L.shape[0]
+    q = np.broadcast_to(np.asarray(design.home_pose if guess is None else guess, float), (N, n)).copy()
+    it = 0
+    active = np.ones(N, bool)
+    for it in range(1, max_iter + 1):
+        idx = np.flatnonzero(active)
+        if idx.size == 0:
+            break
+        ai = a[idx] if a.ndim == 3 else a
+        bi = b[idx] if b.ndim == 3 else b
+        r = cable_lengths(design, q[idx], exits=ai, attachments=bi) - L[idx]
+        J = length_jacobian(design, q[idx], exits=ai, attachments=bi)
+        # least-squares step per pose: solve (J^T J + mu I) dq = -J^T r
+        JT = np.swapaxes(J, 1, 2)
+        H = JT @ J
+        g = (JT @ r[..., None])[..., 0]
+        mu = 1e-12 * np.trace(H, axis1=1, axis2=2)[:, None, None] * np.eye(n)
+        try:
+            dq = -np.linalg.solve(H + mu, g[..., None])[..., 0]
+        except np.linalg.LinAlgError:
+            dq = -(np.linalg.pinv(H) @ g[..., None])[..., 0]
+        # limit the step to keep Newton in its basin
+        step = np.linalg.norm(dq[:, :3], axis=1)
+        scale = np.minimum(1.0, 0.5 * np.max(L[idx], axis=1) / np.maximum(step, 1e-300))
+        q[idx] += dq * scale[:, None]
+        done = np.linalg.norm(dq, axis=1) < tol * np.maximum(1.0, np.max(L[idx], axis=1))
+        active[idx[done]] = False
+    res_vec = cable_lengths(design, q, exits=a, attachments=b) - L
+    residual = np.sqrt(np.mean(res_vec**2, axis=1))
+    scale_len = np.max(L, axis=1)
+    converged = residual < 1e-9 * np.maximum(1.0, scale_len) + (1e-6 if m > n else 0.0)
+    if m > n:
+        # over-determined: a consistent answer has a small residual; report, do not hide
+        converged = residual < 1e-6 * np.maximum(1.0, scale_len)
+    return FKResult(poses=q, residual=residual, converged=converged, iterations=it)

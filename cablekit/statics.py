@@ -1,0 +1,224 @@
+"""Static equilibrium: the external wrench, tension limits, and tension distribution.
+
+Equilibrium ``W t + w_ext = 0`` with ``t_min <= t <= t_max`` (see :mod:`cablekit.symbolic`
+for the sign convention).  This module holds the reference path (scipy's LP solver, one
+pose at a time) and the exactly determined case (m = n, batched).
+
+The **tension margin** of a pose is the largest ``s`` such that some tension vector with
+``t_min + s <= t <= t_max - s`` balances the wrench: positive inside the wrench-feasible
+workspace, zero on its border, negative outside (Gouttefarde, Merlet and Daney, "Wrench-
+feasible workspace of parallel cable-driven mechanisms", ICRA 2007, for the definition of the
+wrench-feasible set).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .kinematics import as_poses, structure_matrix
+from .practice import practice_value
+
+__all__ = [
+    "TensionLimits",
+    "tension_limits",
+    "external_wrench",
+    "TensionResult",
+    "solve_square",
+    "solve_lp",
+    "rotation_matrices",
+    "motor_cable_force",
+    "tensions_at",
+]
+
+
+@dataclass(frozen=True)
+class TensionLimits:
+    """Per-cable tension limits [N], shape (m,) each.
+
+    t_min : least tension that counts as taut; rope_limit : breaking force / design factor;
+    motor_limit : what the winch motor's rated torque pulls through gears and drum;
+    t_max : the lower of the two; limited_by : "rope" or "motor" per cable.
+    """
+
+    t_min: np.ndarray
+    rope_limit: np.ndarray
+    motor_limit: np.ndarray
+    t_max: np.ndarray
+    limited_by: tuple[str, ...]
+    design_factor: float
+
+
+def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficiency):
+    """Cable force a motor torque holds through gears and drum [N].
+
+    ``F = tau * i * eta / r``, ``r = (D_drum + d_rope) / 2`` (pitch radius of the first layer).
+    Pulling against the load, losses reduce the force the motor can deliver, hence ``* eta``.
+    """
+    r = 0.5 * (np.asarray(drum_diameter, float) + rope_diameter)
+    return np.asarray(torque, float) * gear_ratio * efficiency / r
+
+
+def tension_limits(design) -> TensionLimits:
+    """Tension limits of every cable: ``t_max = min(MBF / design factor, motor limit)``."""
+    m = design.m
+    df = practice_value("rope_design_factor", design.practice)
+    rope = np.full(m, design.cable.breaking_force / df)
+    motor = np.array([motor_cable_force(w.motor_rated_torque, w.drum_diameter, design.cable.diameter,
+                                        w.gear_ratio, w.efficiency) for w in design.winches], dtype=float)
+    t_max = np.minimum(rope, motor)
+    by = tuple("rope" if r <= mo else "motor" for r, mo in zip(rope, motor))
+    return TensionLimits(t_min=np.full(m, design.cable.min_tension), rope_limit=rope, motor_limit=motor,
+                         t_max=t_max, limited_by=by, design_factor=df)
+
+
+def rotation_matrices(angles) -> np.ndarray:
+    """``R = Rz(psi) Ry(theta) Rx(phi)`` for angles (N, 3) [rad] -> (N, 3, 3)."""
+    a = np.atleast_2d(np.asarray(angles, float))
+    cx, sx = np.cos(a[:, 0]), np.sin(a[:, 0])
+    cy, sy = np.cos(a[:, 1]), np.sin(a[:, 1])
+    cz, sz = np.cos(a[:, 2]), np.sin(a[:, 2])
+    R = np.empty((a.shape[0], 3, 3))
+    R[:, 0, 0] = cz * cy
+    R[:, 0, 1] = cz * sy * sx - sz * cx
+    R[:, 0, 2] = cz * sy * cx + sz * sx
+    R[:, 1, 0] = sz * cy
+    R[:, 1, 1] = sz * sy * sx + cz * cx
+    R[:, 1, 2] = sz * sy * cx - cz * sx
+    R[:, 2, 0] = -sy
+    R[:, 2, 1] = cy * sx
+    R[:, 2, 2] = cy * cx
+    return R
+
+
+def external_wrench(design, poses, *, extra=None, masses=None) -> np.ndarray:
+    """Wrench of gravity (platform, payload and arm when declared) plus ``extra`` [N, N*m].
+
+    Returns shape (N, n): force (3) and, for rigid platforms, the moment about the platform
+    reference point (3): ``(R c) x (M g)`` with ``c`` the combined centre of mass in the
+    platform frame.
+
+    ``masses`` optionally overrides the list of (mass [kg], centre of mass in the platform
+    frame [m]) pairs; by default platform and payload (and the arm's lumped mass).
+    """
+    q = as_poses(design, poses)
+    N, n = q.shape
+    if masses is None:
+        masses = [(design.platform.mass, design.platform.center_of_mass),
+                  (design.payload.mass, design.payload.center_of_mass)]
+        arm = design.sections.get("arm")
+        if arm is not None and hasattr(arm, "lumped_mass"):
+            masses.append(arm.lumped_mass())
+    M = sum(mm for mm, _ in masses)
+    c = sum(mm * np.asarray(cc, float) for mm, cc in masses) / M if M > 0 else np.zeros(3)
+    f = M * design.gravity
+    w = np.zeros((N, n))
+    w[:, :3] = f
+    if n == 6:
+        r = rotation_matrices(q[:, 3:]) @ c
+        w[:, 3:] = np.cross(r, f)
+    if extra is not None:
+        w += np.broadcast_to(np.asarray(extra, float), (N, n))
+    return w
+
+
+@dataclass(frozen=True)
+class TensionResult:
+    """Tensions for N poses.
+
+    tensions : (N, m) [N]; feasible : (N,) bool; margin : (N,) tension margin [N] (see the
+    module notes); limiting_cable : (N,) index of the cable at the binding limit (-1 when
+    undetermined); method : how the tensions were chosen.
+    """
+
+    tensions: np.ndarray
+    feasible: np.ndarray
+    margin: np.ndarray
+    limiting_cable: np.ndarray
+    method: str
+
+
+def solve_square(W, w_ext, t_min, t_max) -> TensionResult:
+    """Exactly determined rigs (m = n): the unique ``t = -W^{-1} w_ext``, batched.
+
+    Singular poses get NaN tensions, ``feasible=False`` and margin ``-inf``.
+    """
+    W = np.asarray(W, float)
+    w = np.asarray(w_ext, float)
+    N, n, m = W.shape
+    if m != n:
+        raise ValueError(f"solve_square needs as many cables as DOF, got m={m}, n={n}")
+    t = np.full((N, m), np.nan)
+    det = np.linalg.det(W)
+    scale = np.prod(np.linalg.norm(W, axis=1), axis=1)
+    ok = np.abs(det) > 1e-12 * np.maximum(scale, 1e-300)
+    if np.any(ok):
+        t[ok] = np.linalg.solve(W[ok], -w[ok][..., None])[..., 0]
+    lo = t - np.asarray(t_min, float)
+    hi = np.asarray(t_max, float) - t
+    slack = np.minimum(lo, hi)
+    margin = np.where(ok, np.min(np.where(np.isnan(slack), -np.inf, slack), axis=1), -np.inf)
+    limiting = np.where(ok, np.argmin(np.where(np.isnan(slack), -np.inf, slack), axis=1), -1)
+    return TensionResult(tensions=t, feasible=margin >= 0, margin=margin, limiting_cable=limiting,
+                         method="unique solution (m = n)")
+
+
+def solve_lp(W, w_ext, t_min, t_max) -> TensionResult:
+    """Reference path: per pose, ``max s`` s.t. ``W t = -w``, ``t_min + s <= t <= t_max - s``.
+
+    Uses :func:`scipy.optimize.linprog` (HiGHS). Slow (hundreds of poses per second); the
+    fast exact batched path lives in :mod:`cablekit.tension` and is checked against this.
+    Returns the max-margin ("centred") tensions.
+    """
+    from scipy.optimize import linprog
+
+    W = np.asarray(W, float)
+    w = np.asarray(w_ext, float)
+    N, n, m = W.shape
+    t_min = np.broadcast_to(np.asarray(t_min, float), (m,))
+    t_max = np.broadcast_to(np.asarray(t_max, float), (m,))
+    tens = np.full((N, m), np.nan)
+    margin = np.full(N, -np.inf)
+    limiting = np.full(N, -1)
+    c = np.zeros(m + 1)
+    c[-1] = -1.0
+    A_ub = np.zeros((2 * m, m + 1))
+    A_ub[:m, :m] = -np.eye(m)
+    A_ub[:m, -1] = 1.0  # -t + s <= -t_min
+    A_ub[m:, :m] = np.eye(m)
+    A_ub[m:, -1] = 1.0  # t + s <= t_max
+    b_ub = np.concatenate([-t_min, t_max])
+    bounds = [(None, None)] * (m + 1)
+    for k in range(N):
+        A_eq = np.hstack([W[k], np.zeros((n, 1))])
+        res = linprog(c, A_ub=A_ub, b_ub=b_ub, A_eq=A_eq, b_eq=-w[k], bounds=bounds, method="highs")
+        if res.status == 0:
+            t = res.x[:m]
+            tens[k] = t
+            margin[k] = res.x[-1]
+            slack = np.minimum(t - t_min, t_max - t)
+            limiting[k] = int(np.argmin(slack))
+    return TensionResult(tensions=tens, feasible=margin >= 0, margin=margin, limiting_cable=limiting,
+                         method="max-margin (linear program, HiGHS)")
+
+
+def tensions_at(design, poses, *, extra=None, method: str = "auto") -> TensionResult:
+    """Tensions for the design at ``poses`` under gravity (+ ``extra`` wrench).
+
+    ``method="auto"`` uses the fast exact batched path when available, ``"lp"`` forces the
+    per-pose linear program.
+    """
+    q = as_poses(design, poses)
+    W = structure_matrix(design, q)
+    w = external_wrench(design, q, extra=extra)
+    lim = tension_limits(design)
+    if method == "lp":
+        return solve_lp(W, w, lim.t_min, lim.t_max)
+    if design.m == design.dof:
+        return solve_square(W, w, lim.t_min, lim.t_max)
+    try:
+        from .tension import distribute  # the fast exact path (workspace issue)
+    except ImportError:
+        return solve_lp(W, w, lim.t_min, lim.t_max)
+    return distribute(W, w, lim.t_min, lim.t_max)
