@@ -71,7 +71,6 @@ def _evaluate(design, what: str, poses, exits=None, attachments=None) -> np.ndar
     N = q.shape[0]
     m = design.m
     k = len(fn.output_names)
-    per_pose_geometry = a.ndim == 3 or b.ndim == 3
     out = np.empty((N, m, k))
     for s in range(0, N, CHUNK):
         e = min(N, s + CHUNK)
@@ -80,7 +79,6 @@ def _evaluate(design, what: str, poses, exits=None, attachments=None) -> np.ndar
         bc = b[s:e] if b.ndim == 3 else b[None]
         args = [qc[..., j] for j in range(n)] + [ac[..., j] for j in range(3)] + [bc[..., j] for j in range(3)]
         out[s:e] = np.broadcast_to(fn(*args), (e - s, m, k))
-    del per_pose_geometry
     return out
 
 

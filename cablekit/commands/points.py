@@ -67,12 +67,9 @@ def pose_report(design, poses):
 def run(args) -> int:
     d = load_design(args.design)
     poses = read_poses(d, args.points)
-    frame_lo = d.exits.min(axis=0)
-    frame_hi = d.exits.max(axis=0)
     for k, pose in enumerate(poses):
-        if np.any(np.min(np.linalg.norm(d.exits - pose[:3], axis=1)) < 1e-9):
+        if np.min(np.linalg.norm(d.exits - pose[:3], axis=1)) < 1e-9:
             raise InputError(f"{args.points} row {k + 1}: pose coincides with an exit point")
-    del frame_lo, frame_hi
     L, counts, res, reasons = pose_report(d, poses)
     names = d.cable_names
     n_ok = int(np.sum(res.feasible))
