@@ -136,26 +136,30 @@ def parse_quantity(text, dimension: str, *, field: str = "value") -> float:
         raise UnitError(f"{field}: missing unit in {text!r}; expected e.g. '{_example(dimension)}'")
     if not re.fullmatch(r"[A-Za-z_*/()0-9.\s^-]+", unit_text) or "__" in unit_text:
         raise UnitError(f"{field}: unknown unit {unit_text!r} in {text!r}")
+    factor, problem = _unit_factor_for(unit_text, dimension)
+    if problem is not None:
+        raise UnitError(f"{field}: " + problem.replace("{text}", repr(text)))
+    value = number * factor
+    if not math.isfinite(value):
+        raise UnitError(f"{field}: {text!r} overflows to a non-finite value")
+    return value
+
+
+@lru_cache(maxsize=1024)
+def _unit_factor_for(unit_text: str, dimension: str) -> tuple[float, str | None]:
+    """(SI factor, None) for a unit of the right dimension, else (nan, problem text)."""
     ureg = _registry()
     try:
         unit = ureg.parse_units(unit_text.replace("^", "**"))
     except Exception as exc:  # pint raises many kinds; all mean "not a unit we know"
-        raise UnitError(f"{field}: unknown unit {unit_text!r} in {text!r} ({type(exc).__name__})") from None
-    quantity = ureg.Quantity(number, unit)
+        return math.nan, f"unknown unit {unit_text!r} in {{text}} ({type(exc).__name__})"
+    quantity = ureg.Quantity(1.0, unit)
     want = _pint_dimensionality(dimension)
     if quantity.dimensionality != want:
-        raise UnitError(
-            f"{field}: {text!r} has the wrong dimension: expected {dimension.replace('_', ' ')} "
-            f"(e.g. '{_example(dimension)}'), got {quantity.dimensionality or 'dimensionless'}"
-        )
+        return math.nan, (f"{{text}} has the wrong dimension: expected {dimension.replace('_', ' ')} "
+                          f"(e.g. '{_example(dimension)}'), got {quantity.dimensionality or 'dimensionless'}")
     si = DIMENSIONS[dimension][0] or "dimensionless"
-    try:
-        value = float(quantity.to(si).magnitude)
-    except Exception as exc:  # pragma: no cover - dimension already checked
-        raise UnitError(f"{field}: cannot convert {text!r} to {si}: {exc}") from None
-    if not math.isfinite(value):
-        raise UnitError(f"{field}: {text!r} overflows to a non-finite value")
-    return value
+    return float(quantity.to(si).magnitude), None
 
 
 def parse_vector(value, dimension: str, *, length: int = 3, field: str = "value") -> tuple[float, ...]:
