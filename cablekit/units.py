@@ -174,6 +174,8 @@ def parse_vector(value, dimension: str, *, length: int = 3, field: str = "value"
             raise UnitError(f"{field}: expected {length} numbers and a unit such as '{_vector_example(dimension, length)}', got {value!r}")
         numbers = [s.strip() for s in match.group(1).split(",")]
         unit = match.group(2)
+        if "," in unit:
+            raise UnitError(f"{field}: expected {length} numbers and a unit such as '{_vector_example(dimension, length)}', got {value!r}")
         items = [f"{n} {unit}".strip() for n in numbers]
     elif isinstance(value, (list, tuple)):
         items = list(value)
