@@ -73,6 +73,8 @@ class Problem:
     expected: str
 
     def __str__(self) -> str:
+        if f"got {self.value}" in self.expected or self.value in self.expected:
+            return f"{self.path}: {self.expected}"
         return f"{self.path}: {self.expected} (got {self.value})"
 
 

@@ -61,10 +61,6 @@ def _registry():
     import pint
 
     ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-    # Names the trade uses that pint does not know.
-    ureg.define("rpm = revolution / minute")
-    ureg.define("count = [] = counts = cnt")
-    ureg.define("line = [] = lines")
     return ureg
 
 
