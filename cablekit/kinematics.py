@@ -29,6 +29,8 @@ __all__ = [
     "length_per_count",
     "lengths_to_counts",
     "counts_to_lengths",
+    "CountJacobians",
+    "count_jacobians",
     "FKResult",
     "forward_kinematics",
     "trilaterate",
@@ -161,6 +163,33 @@ def lengths_to_counts(design, lengths, *, home=None) -> np.ndarray:
     L = np.asarray(lengths, dtype=float)
     h = home_lengths(design) if home is None else np.asarray(home, float)
     return (L - h) / length_per_count(design)
+
+
+@dataclass(frozen=True)
+class CountJacobians:
+    """Derivatives of the encoder counts of every cable, each shape (N, m).
+
+    length : dc/dL [1/m]; home_length : dc/dL_0 [1/m]; drum_diameter : dc/dD [1/m].
+    """
+
+    counts: np.ndarray
+    length: np.ndarray
+    home_length: np.ndarray
+    drum_diameter: np.ndarray
+
+
+def count_jacobians(design, lengths, *, home=None) -> CountJacobians:
+    """Counts from home and their derivatives with respect to length, home length and drum
+    diameter (generated from :func:`cablekit.symbolic.encoder_template`)."""
+    from .symbolic import encoder_numeric
+
+    L = np.atleast_2d(np.asarray(lengths, float))
+    h = home_lengths(design) if home is None else np.asarray(home, float)
+    D = np.array([w.drum_diameter for w in design.winches])
+    i = np.array([w.gear_ratio for w in design.winches])
+    nc = np.array([w.counts_per_motor_rev for w in design.winches], dtype=float)
+    out = encoder_numeric()(L, h, D, design.cable.diameter, i, nc)
+    return CountJacobians(counts=out[..., 0], length=out[..., 1], home_length=out[..., 2], drum_diameter=out[..., 3])
 
 
 def counts_to_lengths(design, counts, *, home=None) -> np.ndarray:

@@ -35,7 +35,7 @@ import sympy as sp
 
 from .codegen import GeneratedFunction, generate
 
-__all__ = ["CableTemplate", "cable_template", "structure_matrix_expr", "rotation_matrix", "latex_equations",
+__all__ = ["CableTemplate", "cable_template", "EncoderTemplate", "encoder_template", "encoder_numeric", "structure_matrix_expr", "rotation_matrix", "latex_equations",
            "numeric"]
 
 POSE_NAMES = {"point": ("x", "y", "z"), "rigid": ("x", "y", "z", "phi", "theta", "psi")}
@@ -111,6 +111,36 @@ def cable_template(kind: str) -> CableTemplate:
                          jac_attachment=jac_att)
 
 
+@dataclass(frozen=True)
+class EncoderTemplate:
+    """Cable length <-> encoder counts of one winch, and its parameter derivatives.
+
+    ``c = (L - L_0) * i * N_c / (pi * (D + d))`` with ``i`` the gear ratio (motor turns per
+    drum turn), ``N_c`` counts per motor turn (lines x decoding), ``D`` the drum diameter and
+    ``d`` the rope diameter (pitch diameter ``D + d``, first layer).
+    """
+
+    args: tuple[sp.Symbol, ...]  # L, L_0, D, d, i, N_c
+    counts: sp.Expr
+    jac: sp.Matrix  # dc / d(L, L_0, D)
+
+
+@lru_cache(maxsize=None)
+def encoder_template() -> EncoderTemplate:
+    L, L0, D, d, i, Nc = sp.symbols("L L_0 D d i N_c", positive=True)
+    c = (L - L0) * i * Nc / (sp.pi * (D + d))
+    jac = sp.Matrix([[sp.diff(c, v) for v in (L, L0, D)]])
+    return EncoderTemplate(args=(L, L0, D, d, i, Nc), counts=c, jac=jac)
+
+
+@lru_cache(maxsize=None)
+def encoder_numeric() -> GeneratedFunction:
+    """Generated ``(L, L_0, D, d, i, N_c) -> (c, dc/dL, dc/dL_0, dc/dD)``."""
+    t = encoder_template()
+    return generate("encoder_counts", [t.counts, *t.jac], t.args, output_names=["c", "dc_dL", "dc_dL0", "dc_dD"],
+                    doc="Encoder counts from home and their derivatives.")
+
+
 def _flat(m: sp.Matrix):
     return list(m)
 
@@ -166,6 +196,7 @@ def latex_equations(kind: str) -> dict[str, str]:
         "length jacobian": r"\frac{\partial L_i}{\partial \mathbf{q}} = " + sp.latex(sp.simplify(t.jac_pose[:, :3]))
         + (r" \;(\text{translation part})" if kind == "rigid" else ""),
     }
+    out["encoder counts"] = r"c_i = " + sp.latex(encoder_template().counts)
     if kind == "rigid":
         out["structure matrix column"] = (r"\mathbf{w}_i = \begin{bmatrix}\mathbf{u}_i \\ R\mathbf{b}_i \times "
                                           r"\mathbf{u}_i\end{bmatrix}")

@@ -74,3 +74,18 @@ def test_counts_round_trip_and_home(greenhouse):
     c = lengths_to_counts(greenhouse, L)
     np.testing.assert_allclose(counts_to_lengths(greenhouse, c), L, atol=1e-12)
     assert c[0, 0] > 0 > c[0, 1]  # paying out is positive
+
+
+def test_count_jacobians_match_hand_formula_and_differences(greenhouse):
+    from cablekit.kinematics import count_jacobians
+
+    q = np.array([[1.2, 0.7, 0.9], [1.8, 1.1, 0.5]])
+    L = cable_lengths(greenhouse, q)
+    cj = count_jacobians(greenhouse, L)
+    np.testing.assert_allclose(cj.counts, lengths_to_counts(greenhouse, L), rtol=1e-12)
+    lpc = length_per_count(greenhouse)
+    np.testing.assert_allclose(cj.length, 1.0 / lpc[None, :] * np.ones_like(L), rtol=1e-12)
+    np.testing.assert_allclose(cj.home_length, -cj.length, rtol=1e-12)
+    # dc/dD = -c / (D + d): counts scale with 1 / pitch diameter (worked by hand)
+    D = greenhouse.winches[0].drum_diameter
+    np.testing.assert_allclose(cj.drum_diameter, -cj.counts / (D + greenhouse.cable.diameter), rtol=1e-12)
