@@ -406,7 +406,8 @@ def catenary_forces(platform_points, exit_points, unstretched_length, axial_stif
             lam2 = 3.0 * ((Lg ** 2 - hg ** 2) / lg ** 2 - 1.0)
         lam = np.where(lam2 > 0.04, np.sqrt(np.maximum(lam2, 0.04)), 0.2)
         H_cat = wg * lg / (2.0 * lam)
-        H0 = np.maximum(np.maximum(H_str, H_cat), 1e-9 * EAg)
+        H0 = np.maximum(H_str, H_cat)
+        H0 = np.where(H0 > 0, H0, 1e-12 * EAg)  # weightless and not stretched: slack
         V0 = H0 * hg / lg - 0.5 * wg * Lg
         Hg, Vg, cv = _newton_hv(lg, hg, Lg, EAg, wg, H0, V0, tol)
         H[gen], VA[gen], conv[gen] = Hg, Vg, cv
