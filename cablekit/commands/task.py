@@ -1,0 +1,65 @@
+"""``cablekit task DESIGN.toml TASK.csv [-o PLAN.csv]``: check a list of tool-tip targets."""
+
+from __future__ import annotations
+
+import math
+import sys
+
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError
+from ..design import load_design
+from ..units import UnitError, parse_quantity
+
+NAME = "task"
+HELP = "check a task's tool-tip targets and the moves between them; write the plan"
+DESCRIPTION = (
+    "Reads a CSV of tool-tip targets (columns 'label', 'x [mm]', 'y [mm]', 'z [mm]', optional 'tool roll [deg]' "
+    "and 'tool tilt [deg]', 'gripper' open/closed after arriving, optional columns named like the arm's reach "
+    "joints, and for rigid platforms 'platform roll/pitch/yaw [deg]'). Solves the platform pose of each target "
+    "so the tool tip lands on it, and checks every target and the straight moves between them for reach, "
+    "interference with obstacles, cable tensions (arm weight, offset and payload counted) and servo loads. "
+    "Prints the first failing step and why; exit code 4 when a step fails, 3 on bad input. The design needs "
+    "an [arm] section.")
+
+
+def add_arguments(p) -> None:
+    p.add_argument("design", metavar="DESIGN.toml")
+    p.add_argument("task", metavar="TASK.csv")
+    p.add_argument("-o", "--output", metavar="PLAN.csv",
+                   help="write the plan: per target the platform pose, joints, cable lengths, encoder counts, "
+                        "tensions, move times and checks (written even when a step fails)")
+    p.add_argument("--step", default="10 mm", metavar="LENGTH",
+                   help="largest tool-tip travel between checked poses on a move (default: 10 mm)")
+    p.add_argument("--angle-step", default="2 deg", metavar="ANGLE",
+                   help="largest wrist or joint turn between checked poses (default: 2 deg)")
+    p.add_argument("--clearance", default="0 mm", metavar="LENGTH",
+                   help="grow every obstacle box by this much (default: 0 mm)")
+
+
+def _quantity(text: str, dimension: str, option: str, *, positive: bool) -> float:
+    try:
+        value = parse_quantity(text, dimension, field=option)
+    except UnitError as exc:
+        raise InputError(str(exc)) from None
+    if (positive and not value > 0) or value < 0 or not math.isfinite(value):
+        raise InputError(f"{option}: {text!r} must be {'greater than zero' if positive else 'zero or more'}")
+    return value
+
+
+def run(args) -> int:
+    from ..task import check_task, read_task, write_plan
+
+    step = _quantity(args.step, "length", "--step", positive=True)
+    angle_step = _quantity(args.angle_step, "angle", "--angle-step", positive=True)
+    clearance = _quantity(args.clearance, "length", "--clearance", positive=False)
+    d = load_design(args.design)
+    if d.sections.get("arm") is None:
+        raise InputError(f"{args.design} has no [arm] section: the task check needs the tool arm "
+                         "(for platform poses alone use 'cablekit points')")
+    targets = read_task(d, args.task)  # a TableError becomes exit 3 with its message
+    report = check_task(d, targets, move_step=step, angle_step=angle_step, clearance=clearance,
+                        progress=lambda text: print(f"  ... {text}", file=sys.stderr))
+    print("\n".join(report.summary()))
+    if args.output:
+        write_plan(report, args.output)
+        print(f"wrote {args.output}")
+    return EXIT_OK if report.ok else EXIT_CHECK_FAILED
