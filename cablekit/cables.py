@@ -51,6 +51,9 @@ __all__ = [
     "sag_map",
     "SagEquilibrium",
     "tensions_with_sag",
+    "RopeEntry",
+    "rope_catalogue",
+    "smallest_rope",
 ]
 
 _MAX_ITER = 60
@@ -810,3 +813,62 @@ def tensions_with_sag(design, poses, *, max_iterations: int = 30, rtol: float = 
         if np.all(settled | ~good):
             break
     return SagEquilibrium(result=res, catenary=cat, iterations=it, converged=settled)
+
+
+# --------------------------------------------------------------------------------------
+# a small rope catalogue (handbook values)
+# --------------------------------------------------------------------------------------
+CATALOGUE_SOURCE = ("FAA AC 43.13-1B (1998), Table 7-3, MIL-W-83420 comp. A (carbon steel) and B (stainless); "
+                    "minimum breaking strengths")
+
+
+@dataclass(frozen=True)
+class RopeEntry:
+    """One catalogue rope: designation, construction ("7x19"), material, diameter [m],
+    minimum breaking force [N], source."""
+
+    designation: str
+    construction: str
+    material: str
+    diameter: float
+    breaking_force: float
+    source: str
+
+
+def rope_catalogue(path=None) -> tuple[RopeEntry, ...]:
+    """Small steel aircraft cables with their handbook breaking strengths.
+
+    Parameters
+    ----------
+    path : optional CSV with the same columns (``designation, construction, material,
+        diameter [unit], breaking_force [unit]``); default the bundled table.
+
+    References
+    ----------
+    .. [1] FAA Advisory Circular AC 43.13-1B, *Acceptable Methods, Techniques, and Practices -
+       Aircraft Inspection and Repair*, 1998, Table 7-3 (reproducing MIL-W-83420).
+    """
+    from pathlib import Path
+
+    from .tables import Column, read_table
+
+    default = path is None
+    p = Path(__file__).with_name("data") / "aircraft_cable_mbf.csv" if default else Path(path)
+    t = read_table(p, [Column("designation", "text"), Column("construction", "text"), Column("material", "text"),
+                       Column("diameter", "length"), Column("breaking_force", "force")])
+    src = CATALOGUE_SOURCE if default else str(p)
+    c = t.columns
+    return tuple(RopeEntry(str(c["designation"][k]), str(c["construction"][k]), str(c["material"][k]),
+                           float(c["diameter"][k]), float(c["breaking_force"][k]), src) for k in range(len(t)))
+
+
+def smallest_rope(tension, design_factor, *, construction: str = "7x19", material: str = "carbon",
+                  catalogue=None) -> RopeEntry | None:
+    """The thinnest catalogue rope whose breaking force is at least ``design_factor * tension``.
+
+    ``material`` is matched as text ("carbon", "stainless"); ``None`` when no rope is strong enough.
+    """
+    need = float(tension) * float(design_factor)
+    rows = [r for r in (rope_catalogue() if catalogue is None else catalogue)
+            if r.construction == construction and material in r.material and r.breaking_force >= need]
+    return min(rows, key=lambda r: r.diameter) if rows else None

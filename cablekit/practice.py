@@ -24,32 +24,48 @@ class PracticeEntry:
 
 _DEG = 0.017453292519943295
 
+# Sources, named once (each entry says whether its value was checked or recalled)
+_WRTB = "Wire Rope Technical Board, Wire Rope Users Manual (4th ed.), section on fleet angle"
+_DD_GUIDE = ("aircraft-cable suppliers' pulley guides, D:d tables by construction (tread diameter / cable "
+             "diameter): 6x19 and 7x19 'desired minimum' 24:1 and 'critical minimum' 18:1; 6x7 and 7x7 42:1 and "
+             "28:1 (common practice, no standard; checked against one published supplier table)")
+
 PRACTICE: dict[str, PracticeEntry] = {
     e.key: e
     for e in [
         PracticeEntry("rope_design_factor", 5.0, "dimensionless",
                       "rope design factor: minimum breaking force / highest working tension",
-                      "ASME B30.7 (winches) asks at least 3.5 for running rope on base-mounted drum hoists; "
-                      "5 is the common general-lifting choice (EN 13001-3-2 / ISO 4308 group M4 ~ 4.5). "
-                      "From memory; local codes override."),
+                      "common practice for hanging loads on small steel cable: 5:1 (suppliers commonly assume 4:1 to "
+                      "5:1); ASME B30.7 asks at least 3.5 for running ropes of base-mounted drum hoists (from memory). "
+                      "Local codes and a competent person's judgement override."),
         PracticeEntry("fleet_angle_smooth", 1.5 * _DEG, "angle",
                       "largest fleet angle on a smooth (plain) drum",
-                      "ASME B30.7, fleet angle: 1.5 deg for smooth drums (from memory)"),
+                      f"{_WRTB}: at most 1.5 deg for a smooth drum (checked against a published copy of the text)"),
         PracticeEntry("fleet_angle_grooved", 2.0 * _DEG, "angle",
                       "largest fleet angle on a grooved drum",
-                      "ASME B30.7, fleet angle: 2 deg for grooved drums (from memory)"),
+                      f"{_WRTB}: at most 2 deg for a grooved drum (checked against a published copy of the text); "
+                      "some rope makers allow up to 4 deg for 6- and 8-strand ropes on grooved drums"),
+        PracticeEntry("fleet_angle_min", 0.5 * _DEG, "angle",
+                      "smallest fleet angle on a smooth drum (below it the rope piles up at the flange: warn)",
+                      f"{_WRTB}: fleet angles under 0.5 deg should be avoided on smooth drums"),
         PracticeEntry("drum_d_ratio_min", 18.0, "dimensionless",
-                      "smallest drum pitch diameter / rope diameter (D/d)",
-                      "aircraft-cable pulley practice for 7x19: 18:1 minimum (FAA AC 43.13-1B ch. 7, from memory)"),
+                      "smallest drum diameter / rope diameter (D/d) for 6x19 and 7x19 rope",
+                      _DD_GUIDE),
         PracticeEntry("drum_d_ratio_desired", 24.0, "dimensionless",
-                      "desirable drum pitch diameter / rope diameter (D/d) (below it: warn)",
-                      "aircraft-cable pulley practice for 7x19: 24:1 desirable (FAA AC 43.13-1B ch. 7, from memory)"),
+                      "desirable drum diameter / rope diameter (D/d) for 6x19 and 7x19 rope (below it: warn)",
+                      _DD_GUIDE),
         PracticeEntry("pulley_d_ratio_min", 18.0, "dimensionless",
-                      "smallest exit-pulley diameter / rope diameter",
-                      "aircraft-cable pulley practice for 7x19: 18:1 minimum (FAA AC 43.13-1B ch. 7, from memory)"),
+                      "smallest exit-pulley diameter / rope diameter for 6x19 and 7x19 rope",
+                      _DD_GUIDE),
         PracticeEntry("pulley_d_ratio_desired", 24.0, "dimensionless",
-                      "desirable exit-pulley diameter / rope diameter (below it: warn)",
-                      "aircraft-cable pulley practice for 7x19: 24:1 desirable (FAA AC 43.13-1B ch. 7, from memory)"),
+                      "desirable exit-pulley diameter / rope diameter for 6x19 and 7x19 rope (below it: warn)",
+                      _DD_GUIDE),
+        PracticeEntry("d_ratio_min_7x7", 28.0, "dimensionless",
+                      "smallest drum or pulley diameter / rope diameter for stiffer 6x7 and 7x7 rope",
+                      _DD_GUIDE),
+        PracticeEntry("d_ratio_desired_7x7", 42.0, "dimensionless",
+                      "desirable drum or pulley diameter / rope diameter for 6x7 and 7x7 rope (below it: warn)",
+                      _DD_GUIDE),
         PracticeEntry("tension_margin_warn", 0.10, "dimensionless",
                       "share of a cable's tension range below which a feasible pose is flagged 'warn'",
                       "common practice, no source"),
@@ -62,15 +78,28 @@ PRACTICE: dict[str, PracticeEntry] = {
         PracticeEntry("motor_rated_use", 1.0, "dimensionless",
                       "highest static motor torque as a share of rated torque (pass up to this)",
                       "common practice, no source: continuous holding torque within the motor's rated torque"),
+        PracticeEntry("motor_speed_use", 1.0, "dimensionless",
+                      "motor speed at the top cable speed as a share of the rated speed (pass up to this)",
+                      "common practice, no source: run within the rated speed"),
         PracticeEntry("count_rate_use", 0.8, "dimensionless",
                       "highest encoder count rate as a share of the controller's counting limit",
                       "common practice, no source: keep 20 % headroom on the decoder"),
         PracticeEntry("drum_fill_max", 1.0, "dimensionless",
                       "share of the drum's rope capacity that may be used",
                       "common practice, no source"),
+        PracticeEntry("groove_pitch", 1.09, "dimensionless",
+                      "distance between neighbouring wraps on a grooved drum, in rope diameters (smooth drum: 1)",
+                      "rope makers' drum-groove guidance: groove radius about 0.53 d and a single-layer pitch of at "
+                      "least 2.065 groove radii, about 1.09 d (checked against one published rope-maker table; "
+                      "common practice)"),
         PracticeEntry("flange_freeboard_min", 2.0, "dimensionless",
                       "flange must stand at least this many rope diameters above the top layer",
-                      "ASME B30.7 asks the flange to project at least 1/2 in or 2 rope diameters above the top layer (from memory)"),
+                      "ASME B30.7 asks the flange to project at least 1/2 in or 2 rope diameters above the top layer "
+                      "(from memory)"),
+        PracticeEntry("brake_torque_factor", 1.25, "dimensionless",
+                      "holding brake torque / static load torque at the brake",
+                      "hoist and winch standards commonly ask a brake to hold 125 % of the rated load torque "
+                      "(ASME B30.7 / B30.16, from memory)"),
     ]
 }
 

@@ -1,0 +1,55 @@
+"""``cablekit drive DESIGN.toml``: per-winch drivetrain sizing with pass/warn/fail."""
+
+from __future__ import annotations
+
+import sys
+
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError
+from ..design import load_design
+
+NAME = "drive"
+HELP = "size each winch (torque, speed, encoder, drum, fleet angle, D/d, rope) and check it"
+DESCRIPTION = ("Size every winch's drivetrain from the highest cable tension over the task region and check rope "
+               "design factor, D/d of drum and pulley, fleet angle, encoder count rate, motor speed and torque, "
+               "drum capacity, flange freeboard and brake. Exit code 4 when a check fails.")
+
+
+def add_arguments(p) -> None:
+    p.add_argument("design", metavar="DESIGN.toml")
+    p.add_argument("--step", metavar="LENGTH", default=None,
+                   help="task-grid step with its unit, e.g. '50 mm' (default: task.step of the design)")
+    p.add_argument("--all-checks", action="store_true", help="list every check, not only those not passed")
+
+
+def _progress(done: int, total: int) -> None:
+    if total >= 2000 and sys.stderr.isatty():
+        print(f"\r  tensions over the task region: {done}/{total} poses", end="" if done < total else "\n",
+              file=sys.stderr, flush=True)
+
+
+def run(args) -> int:
+    from ..drive import size_drives
+    from ..units import UnitError, parse_quantity
+
+    d = load_design(args.design)
+    step = None
+    if args.step is not None:
+        try:
+            step = parse_quantity(args.step, "length", field="--step")
+        except UnitError as exc:
+            raise InputError(str(exc)) from None
+        if not step > 0:
+            raise InputError(f"--step must be a positive length, got {args.step!r}")
+    try:
+        res = size_drives(d, step=step, progress=_progress)
+    except ValueError as exc:  # an impossible grid or drum (e.g. a drum narrower than one wrap)
+        raise InputError(str(exc)) from None
+    lines = res.summary()
+    print("\n".join(lines[:-1]))
+    if args.all_checks:
+        print("  every check:")
+        for c in res.checks:
+            print(f"    {c.status.upper():<4} {c.subject}: {c.title}: {c.value:.4g} {c.unit} (limit {c.limit:.4g} "
+                  f"{c.unit}; source: {c.source})")
+    print(lines[-1])
+    return EXIT_CHECK_FAILED if res.status == "fail" else EXIT_OK
