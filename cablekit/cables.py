@@ -872,3 +872,17 @@ def smallest_rope(tension, design_factor, *, construction: str = "7x19", materia
     rows = [r for r in (rope_catalogue() if catalogue is None else catalogue)
             if r.construction == construction and material in r.material and r.breaking_force >= need]
     return min(rows, key=lambda r: r.diameter) if rows else None
+
+
+def latex_equations() -> dict[str, str]:
+    """LaTeX of the cable models for notebooks and the review sheet."""
+    return {
+        "elastic stretch": r"\Delta L = \frac{T\,L}{EA}",
+        "elastic catenary, span": r"l = \frac{H L_0}{EA} + \frac{H}{w}\left[\sinh^{-1}\frac{V_B}{H} - "
+                                  r"\sinh^{-1}\frac{V_A}{H}\right]",
+        "elastic catenary, rise": r"h = \frac{V_B^2 - V_A^2}{2 w EA} + \frac{T_B - T_A}{w},\quad "
+                                  r"V_B = V_A + w L_0,\; T = \sqrt{H^2 + V^2}",
+        "tension at the winch end": r"T_B \approx T_A + w\,h",
+        "Ernst's equivalent modulus": r"E_{eq} = \frac{E}{1 + \dfrac{(w l)^2 EA}{12\,T^3}}",
+        "parabolic sag": r"d = \frac{q\,l^2}{8 H}",
+    }

@@ -595,3 +595,16 @@ def _d_ratio_limits(design, where: str):
 def design_checks(design, *, workspace=None) -> list[Check]:
     """Every drivetrain and rope check of the design (see :func:`size_drives`)."""
     return list(size_drives(design, workspace=workspace).checks)
+
+
+def latex_equations() -> dict[str, str]:
+    """LaTeX of the drivetrain formulas for notebooks and the review sheet."""
+    return {
+        "pitch diameter": r"D_p = D_{drum} + d + 2(n_{layer} - 1)\,d",
+        "length per count": r"\Delta L = \frac{\pi D_p}{i\,N_{lines}\,k_{dec}}",
+        "count rate": r"f_{count} = \frac{v}{\Delta L}",
+        "motor speed": r"\omega_m = i\,\frac{2 v}{D_p}",
+        "motor torque": r"\tau_m = \frac{F\,r}{i\,\eta}",
+        "fleet angle": r"\alpha = \arctan\frac{b/2}{L_{drum\to exit}}",
+        "rope design factor": r"n = \frac{F_{break}}{F_{max}}",
+    }

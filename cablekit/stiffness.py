@@ -408,3 +408,21 @@ def stiffness_map(design, *, poses=None, step: float | None = None, tensions=Non
                         deflection=defl * nan[:, None], deflection_norm=np.linalg.norm(defl[:, :3], axis=1) * nan,
                         frequency=freq * nan, valid=valid, payload_change=dm,
                         cable_model="sag (Ernst)" if sag else "straight (EA/L)", frequency_note=note)
+
+
+def latex_equations(kind: str = "point") -> dict[str, str]:
+    """LaTeX of the stiffness model for notebooks and the review sheet."""
+    out = {
+        "cable axial stiffness": r"k_i = \frac{EA}{L_i}\quad\left(\text{sagging: } \frac{E_{eq}A}{L_i}\right)",
+        "cable stiffness at the platform": r"K_i = k_i\,\mathbf{u}_i\mathbf{u}_i^T + "
+                                           r"\frac{t_i}{L_i}\left(I - \mathbf{u}_i\mathbf{u}_i^T\right)",
+        "deflection under a payload change": r"\delta\mathbf{x} = K^{-1}\,\delta\mathbf{w}",
+        "natural frequencies": r"K\mathbf{x} = \omega^2 M \mathbf{x},\quad f = \frac{\omega}{2\pi}",
+    }
+    if kind == "rigid":
+        out["platform stiffness"] = (r"K = \sum_i A_i^T K_i A_i - \begin{bmatrix}0 & 0\\ 0 & \sum_i [\mathbf{f}_i\times]"
+                                     r"[\mathbf{r}_i\times] + [\mathbf{F}_g\times][\mathbf{c}\times]\end{bmatrix},"
+                                     r"\quad A_i = \begin{bmatrix} I & -[\mathbf{r}_i\times]\end{bmatrix}")
+    else:
+        out["platform stiffness"] = r"K = \sum_i K_i"
+    return out

@@ -223,3 +223,11 @@ def test_forward_solver_converges_from_taut_to_deeply_sagging(EA):
     big = np.linalg.norm(r.force_platform, axis=1)
     np.testing.assert_allclose((r.force_platform + r.force_exit)[:, 2], -w * L0, rtol=1e-9, atol=1e-12 * big.max())
     np.testing.assert_allclose((r.force_platform + r.force_exit)[:, :2], 0.0, atol=1e-12 * big.max())
+
+
+def test_latex_equations_of_the_cable_models():
+    from cablekit.cables import latex_equations
+
+    eqs = latex_equations()
+    assert "Ernst's equivalent modulus" in eqs and "elastic catenary, span" in eqs
+    assert all(tex.count("{") == tex.count("}") for tex in eqs.values())

@@ -277,3 +277,11 @@ def test_cablekit_drive_bad_input_exits_3(tmp_path, capsys):
                                                                                   'drum_diameter = "0 mm"'))
     assert main(["drive", str(bad)]) == 3
     assert "winch.drum_diameter" in capsys.readouterr().err
+
+
+def test_latex_equations_of_the_drivetrain():
+    from cablekit.drive import latex_equations
+
+    eqs = latex_equations()
+    assert r"\tau_m = \frac{F\,r}{i\,\eta}" == eqs["motor torque"]
+    assert all(tex.count("{") == tex.count("}") for tex in eqs.values())

@@ -156,3 +156,12 @@ def test_bad_inputs_are_refused(greenhouse):
         platform_stiffness(greenhouse, q, np.ones((1, 2)))
     with pytest.raises(ValueError, match="payload_change"):
         stiffness_map(greenhouse, poses=q, payload_change=float("nan"))
+
+
+def test_latex_equations_of_the_stiffness_model():
+    from cablekit.stiffness import latex_equations
+
+    for kind in ("point", "rigid"):
+        eqs = latex_equations(kind)
+        assert "platform stiffness" in eqs
+        assert all(tex.count("{") == tex.count("}") for tex in eqs.values())
