@@ -299,12 +299,16 @@ def latex_to_mathml(latex: str, *, display: bool = True) -> str:
 # ======================================================================================
 # the sheet's data
 # ======================================================================================
+_PLAIN_UNITS = ("", "%", "counts", "poses")  # shown as stored, not converted from SI
+
+
 @dataclass(frozen=True)
 class Quantity:
     """A derived number shown on the sheet.
 
     key : stable identifier (``"cable_length:post A"``); label : what it is; low, high : the
-    range in SI units (equal for a single value); unit : the display unit (``"mm"``, ``"N"``);
+    range in SI units (equal for a single value); unit : the display unit (``"mm"``, ``"N"``;
+    ``""`` and ``"%"`` are shown as stored);
     cable : the cable it belongs to (``None`` for the whole rig); source : the library function
     that computed it.
     """
@@ -320,8 +324,9 @@ class Quantity:
     def display(self) -> str:
         from .units import to_unit
 
-        lo = to_unit(self.low, self.unit) if self.unit else self.low
-        hi = to_unit(self.high, self.unit) if self.unit else self.high
+        plain = self.unit in _PLAIN_UNITS
+        lo = self.low if plain else to_unit(self.low, self.unit)
+        hi = self.high if plain else to_unit(self.high, self.unit)
         return _num(lo) if lo == hi else f"{_num(lo)} … {_num(hi)}"
 
 
@@ -333,8 +338,8 @@ class Part:
     that fills it; available : False when that module is not installed (the section then says
     plainly that it was not checked); summary : text lines from the result objects; figures :
     (caption, plotly figure) pairs; quantities : derived numbers; equations : (name, LaTeX)
-    pairs; not_checked : what this part leaves out; result : the result object handed to
-    :func:`~cablekit.checks.run_all` (by ``key``).
+    pairs; not_checked : what this part leaves out; options : the result objects handed to
+    :func:`~cablekit.checks.run_all` by option name (e.g. ``{"accuracy": AccuracyResult}``).
     """
 
     key: str
@@ -346,7 +351,7 @@ class Part:
     quantities: tuple[Quantity, ...] = ()
     equations: tuple[tuple[str, str], ...] = ()
     not_checked: tuple[str, ...] = ()
-    result: Any = None
+    options: Mapping[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -440,9 +445,9 @@ def _num(v: float) -> str:
         return "NaN"
     if math.isinf(v):
         return "∞" if v > 0 else "−∞"
-    if v == 0:
-        return "0"
     a = abs(v)
+    if a < 1e-12:  # rounding noise of a zero (values are in display units: mm, N, %, ...)
+        return "0"
     if 1e-3 <= a < 1e7:
         decimals = max(0, 3 - int(math.floor(math.log10(a))))
         text = f"{v:.{decimals}f}"
@@ -632,15 +637,39 @@ def _module(name: str):
         raise
 
 
+def _stage_progress(progress: Progress) -> Callable[[str, int, int], None]:
+    """Adapt ``progress(text)`` to the modules' ``progress(stage, done, total)``: once a stage."""
+    seen: set[str] = set()
+
+    def report(stage: str, done: int = 0, total: int = 0) -> None:
+        if stage not in seen:
+            seen.add(stage)
+            progress(f"  {stage}")
+
+    return report
+
+
+def _module_equations(mod, design) -> tuple[tuple[str, str], ...]:
+    """The module's own LaTeX (``latex_equations(design)`` or ``latex_equations()``) if it has any."""
+    fn = getattr(mod, "latex_equations", None)
+    if fn is None:
+        return ()
+    import inspect
+
+    eqs = fn(design) if inspect.signature(fn).parameters else fn()
+    return tuple(eqs.items()) if isinstance(eqs, Mapping) else tuple(eqs)
+
+
 # key, title, module, what the section covers, builder
 def _analysis_parts():
     return [
         ("workspace", "Workspace: task-region coverage and tension margins", "cablekit.workspace",
-         "task-region coverage, tension margins and interference", _checks_only_part),
+         "task-region coverage, tension margins and interference", _workspace_part),
         ("drive", "Drivetrain, cables and stiffness", "cablekit.drive",
          "drum, gears, motor, encoder, rope and stiffness checks", _checks_only_part),
-        ("accuracy", "Accuracy", "cablekit.accuracy", "positioning accuracy", _checks_only_part),
-        ("arm", "Arm: reach and servo loads", "cablekit.arm", "arm reach and servo loads", _checks_only_part),
+        ("accuracy", "Accuracy: predicted positioning error over the task region", "cablekit.accuracy",
+         "positioning accuracy", _accuracy_part),
+        ("arm", "Arm: reach and servo loads", "cablekit.arm", "arm reach and servo loads", _arm_part),
     ]
 
 
@@ -648,6 +677,96 @@ def _checks_only_part(key, title, mod, design, results, progress) -> Part:
     """A module whose results the sheet does not plot: its checks still run."""
     return Part(key=key, title=title, module=mod.__name__, available=True,
                 summary=("Checks only: this module's result plots are not on the sheet.",))
+
+
+def _workspace_part(key, title, mod, design, results, progress) -> Part:
+    ws = results.get("workspace")
+    if ws is None:
+        stage = _stage_progress(progress)
+        ws = mod.compute_workspace(design, progress=lambda done, total: stage(f"{total:,} poses"))
+    src = "cablekit.workspace.compute_workspace"
+    q = [Quantity("coverage", "task positions covered (every orientation feasible)", 100 * ws.coverage,
+                  100 * ws.coverage, "%", source=src)]
+    if ws.box_lower is not None:
+        q.append(Quantity("feasible_volume", "feasible share of the task box volume", ws.feasible_volume,
+                          ws.feasible_volume, "m^3", source=src))
+    if np.any(ws.feasible):
+        least = float(np.min(ws.margin[ws.feasible]))
+        q.append(Quantity("least_margin", "least tension margin on feasible poses", least, least, "N", source=src))
+    if np.any(np.isfinite(ws.clearance)):
+        gap = float(np.min(ws.clearance))
+        q.append(Quantity("least_clearance", "least gap between cables", gap, gap, "mm", source=src))
+    figures = [("Task-region coverage: each position coloured by its status (worst orientation)",
+                ws.figure("scatter"))]
+    if ws.axes is not None:
+        figures.append(("Least tension margin on horizontal slices of the task box (negative: infeasible)",
+                        ws.figure("slices")))
+    eqs = _module_equations(mod, design) or (
+        ("tension margin", r"s^{*} = \max s \quad\text{such that}\quad W\mathbf{t} + \mathbf{w} = 0,\;"
+                           r"t_{min} + s \le t_i \le t_{max} - s"),)
+    return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(ws.summary()),
+                figures=tuple(figures), quantities=tuple(q), equations=eqs, options={"workspace": ws})
+
+
+_ACCURACY_EQUATIONS = (
+    ("first-order propagation", r"\delta\mathbf{q} = J^{+} \left(\delta\mathbf{L} - J_a\,\delta\mathbf{a}\right),"
+                                r"\quad J = \frac{\partial \mathbf{L}}{\partial \mathbf{q}}"),
+    ("rectangular error of half-width a (GUM 4.3.7)", r"u = \frac{a}{\sqrt{3}}"),
+    ("elastic stretch", r"\Delta L_i = \frac{t_i L_i}{E A}"),
+)
+
+
+def _accuracy_part(key, title, mod, design, results, progress) -> Part:
+    res = results.get("accuracy")
+    if res is None:
+        res = mod.accuracy_map(design, progress=_stage_progress(progress))
+    feas = np.asarray(res.feasible, bool)
+    q: list[Quantity] = []
+    if np.any(feas):
+        worst, _ = res.worst_p95()
+        p95 = np.asarray(res.p95_position, float)[feas]
+        step = np.asarray(res.step, float)[feas]
+        src = "cablekit.accuracy.accuracy_map"
+        q += [Quantity("accuracy_p95", "95 % position error over sampled builds (median … worst)",
+                       float(np.median(p95)), float(worst), "mm", source=src),
+              Quantity("accuracy_worst_case", "worst-case position bound (largest)",
+                       float(np.nanmax(np.asarray(res.worst_position)[feas])),
+                       float(np.nanmax(np.asarray(res.worst_position)[feas])), "mm", source=src),
+              Quantity("motion_step", "encoder resolution at the platform: move from one count (median … largest)",
+                       float(np.median(step)), float(np.max(step)), "mm", source=src),
+              Quantity("repeatability_3sigma", "random error, 3 sigma (largest)",
+                       float(np.nanmax(np.asarray(res.random_3sigma)[feas])),
+                       float(np.nanmax(np.asarray(res.random_3sigma)[feas])), "mm", source=src)]
+    not_checked = []
+    if not res.sag_modelled:
+        not_checked.append("Accuracy: cable sag not modelled (straight cables).")
+    if res.budget.required_accuracy is None:
+        not_checked.append("Accuracy: no required accuracy in the design's [errors] table, so the predicted error "
+                           "is shown but not judged.")
+    eqs = _module_equations(mod, design) or _ACCURACY_EQUATIONS
+    return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(res.summary()),
+                figures=(("Accuracy map over the task region", res.figure()),), quantities=tuple(q),
+                equations=eqs, not_checked=tuple(not_checked), options={"accuracy": res})
+
+
+def _arm_part(key, title, mod, design, results, progress) -> Part:
+    arm = design.sections.get("arm")
+    if arm is None:
+        return Part(key=key, title=title, module=mod.__name__, available=True,
+                    summary=("This design has no [arm] section: no arm to check.",))
+    r = results.get("arm_reach")
+    if r is None:
+        r = mod.reach(arm, gravity=design.gravity)
+    q = [Quantity("arm_mass", "arm: links, gripper (and its own payload)", arm.total_mass, arm.total_mass, "kg",
+                  source="cablekit.arm.Arm.total_mass")]
+    for k, j in enumerate(arm.joints):
+        unit = "N*m" if j.revolute else "N"
+        q.append(Quantity(f"arm_servo_load:{j.name}", f"arm joint {j.name}: peak static servo load, payload held",
+                          float(r.peak_load[k]), float(r.peak_load[k]), unit, source="cablekit.arm.reach"))
+    return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(r.summary()),
+                figures=(("Arm reach (platform frame, level), coloured by the most loaded servo's use",
+                          r.figure(color="servo")),),
+                quantities=tuple(q), equations=_module_equations(mod, design), options={"arm_reach": r})
 
 
 # ======================================================================================
@@ -667,9 +786,10 @@ def build_review(design, *, source_path=None, date: str | None = None, results: 
         The date printed on the sheet (``YYYY-MM-DD``); default today.  The date is the only
         part of the sheet that changes between builds of the same design.
     results : mapping, optional
-        Result objects already computed for this design, by part key (``"workspace"``,
-        ``"drive"``, ``"accuracy"``, ``"arm"``); reused instead of computed again (the
-        dashboard passes what it already shows).
+        Result objects already computed for this design, by the option name
+        :func:`~cablekit.checks.run_all` passes them under (``"workspace"``, ``"drive"``,
+        ``"accuracy"``, ``"arm_reach"``); reused instead of computed again (the dashboard
+        passes what it already shows).  They must belong to ``design``.
     progress : callable, optional
         Called with a short text before each long step.
 
@@ -681,8 +801,7 @@ def build_review(design, *, source_path=None, date: str | None = None, results: 
     progress = progress or (lambda msg: None)
     date = date or datetime.date.today().isoformat()
     results = dict(results or {})
-    parts = [_rig_part(design, results, progress)]
-    missing = []
+    parts, missing = [], []
     for key, title, module, what, builder in _analysis_parts():
         mod = _module(module)
         if mod is None:
@@ -692,8 +811,8 @@ def build_review(design, *, source_path=None, date: str | None = None, results: 
         progress(title.split(":")[0].lower())
         part = builder(key, title, mod, design, results, progress)
         parts.append(part)
-        if part.result is not None:
-            results[key] = part.result
+        results.update(part.options)
+    parts.insert(0, _rig_part(design, results, progress))  # uses the workspace's tensions when there
     progress("design checks")
     checks = tuple(run_all(design, **results))
     status = worst_status(checks)
@@ -720,6 +839,7 @@ p, li { margin: 3pt 0; }
 table { border-collapse: collapse; width: 100%; margin: 4pt 0 8pt 0; font-size: 9pt; }
 th, td { border: 1px solid var(--rule); padding: 2pt 4pt; text-align: left; vertical-align: top; }
 thead th { background: #eef2f6; }
+table.checks td:nth-child(n+4):nth-child(-n+6) { white-space: nowrap; }
 table.kv th { width: 38%; font-weight: normal; color: var(--muted); background: none; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .meta { color: var(--muted); font-size: 9pt; }
@@ -745,6 +865,7 @@ math .bf { font-weight: bold; }
 pre { font-size: 8.5pt; background: #f5f7f9; padding: 4pt; white-space: pre-wrap; }
 .sign td { height: 26pt; }
 .modebar, .modebar-container { display: none !important; }
+.print-copy { display: none; }
 footer { margin-top: 16pt; border-top: 1px solid var(--rule); padding-top: 4pt; }
 @page { size: A4; margin: 12mm 10mm; }
 @media print {
@@ -753,7 +874,39 @@ footer { margin-top: 16pt; border-top: 1px solid var(--rule); padding-top: 4pt; 
   tr { break-inside: avoid; page-break-inside: avoid; }
   .eq .math { overflow: visible; }
   .sign { break-inside: avoid; page-break-inside: avoid; }
+  .has-print-copy { display: none !important; }
+  .print-copy { display: block; }
 }
+"""
+
+# WebGL plots (3-D scatter, surfaces, scattergl) print blank.  When the page is opened for
+# printing (address ending in #print, as render_pdf does), each gets a PNG copy
+# (Plotly.toImage) shown only in print; body[data-print-ready] says when they are done.  A
+# person printing from a browser's menu can add #print to the address first.
+_PRINT_SCRIPT = """
+(function () {
+  var GL = /(3d|gl)$|^(surface|cone|streamtube|volume|isosurface|splom|parcoords)$/;
+  function usesWebGL(gd) {
+    return (gd.data || []).some(function (t) { return GL.test(t.type || ""); });
+  }
+  window.addEventListener("load", function () {
+    if (location.hash !== "#print") { return; }
+    var jobs = [];
+    document.querySelectorAll(".plotly-graph-div").forEach(function (gd) {
+      if (!usesWebGL(gd)) { return; }
+      var w = (gd.layout && gd.layout.width) || 640, h = (gd.layout && gd.layout.height) || 420;
+      jobs.push(Plotly.toImage(gd, {format: "png", width: w, height: h, scale: 2}).then(function (url) {
+        var img = document.createElement("img");
+        img.src = url; img.className = "print-copy"; img.alt = "printable copy of the plot above";
+        img.style.width = w + "px";
+        gd.classList.add("has-print-copy");
+        gd.parentNode.insertBefore(img, gd.nextSibling);
+      }));
+    });
+    Promise.all(jobs).then(function () { document.body.setAttribute("data-print-ready", "yes"); },
+                           function (err) { document.body.setAttribute("data-print-ready", "failed"); throw err; });
+  });
+})();
 """
 
 _STATUS_TEXT = {PASS: "PASS", WARN: "WARN", FAIL: "FAIL"}
@@ -801,7 +954,7 @@ def _render(design, *, parts, checks, status, missing, digest, date, source_path
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             f"<title>{_h(title)}</title>\n<meta name=\"generator\" content=\"cablekit {_h(__version__)}\">\n"
             f"<style>{_CSS}</style>\n<script>{get_plotlyjs()}</script>\n</head>\n<body>\n"
-            + "\n".join(body) + "\n</body>\n</html>\n")
+            + "\n".join(body) + f"\n<script>{_PRINT_SCRIPT}</script>\n</body>\n</html>\n")
 
 
 def _section(anchor: str, title: str, content: str) -> str:
@@ -978,26 +1131,28 @@ def _render_checks(checks, parts) -> str:
            "Margin is the distance from the limit in the check's unit, positive on the safe side.</p>"]
     rows, attrs = [], []
     for k, c in enumerate(checks, start=1):
-        rows.append([str(k), _badge(c.status), f"<b>{_h(c.title)}</b>", _h(c.subject),
-                     f'<span class="num">{_num(c.value)}</span>', f'<span class="num">{_num(c.limit)}</span>',
-                     f'<span class="num">{_num(c.margin)}</span>', _h(c.unit), _h(c.detail),
+        unit = f" {_h(c.unit)}" if c.unit else ""
+        rows.append([str(k), _badge(c.status), f'<b>{_h(c.title)}</b><div class="meta">{_h(c.subject)}</div>',
+                     f'<span class="num">{_num(c.value)}</span>{unit}', f'<span class="num">{_num(c.limit)}</span>{unit}',
+                     f'<span class="num">{_num(c.margin)}</span>{unit}', _h(c.detail),
                      f'<span class="source">{_h(c.source)}</span>'])
         attrs.append(f'id="check-{k}" class="{c.status}" data-key="{_h(c.key)}" data-status="{c.status}"')
-    out.append(_table(["#", "status", "check", "subject", "value", "limit", "margin", "unit", "detail / reason",
-                       "source of the limit"], rows, cls="checks", row_attrs=attrs))
+    out.append(_table(["#", "status", "check", "value", "limit", "margin", "detail / reason", "source of the limit"],
+                      rows, cls="checks", row_attrs=attrs))
     return "\n".join(out)
 
 
 # -- module sections --------------------------------------------------------------------------
 def _render_parts(parts) -> str:
-    out = []
+    out = ['<p class="meta">The plots are interactive on screen (hover for values). 3-D plots print from a browser '
+           "when the address ends in <code>#print</code>; <code>cablekit review --pdf</code> does this itself.</p>"]
     for p in parts:
         out.append(f'<h3 id="part-{p.key}">{_h(p.title)}</h3>')
         if not p.available:
             out.append(f'<p class="notchecked"><b>Not checked.</b> {_h(" ".join(p.not_checked))}</p>')
             continue
         if p.summary:
-            out.append("<ul>" + "".join(f"<li>{_h(s)}</li>" for s in p.summary) + "</ul>")
+            out.append('<pre class="summary">' + _h("\n".join(p.summary)) + "</pre>")
         for k, (caption, fig) in enumerate(p.figures, start=1):
             out.append(f'<div class="figure">{_figure_html(fig, f"fig-{p.key}-{k}")}'
                        f'<div class="caption">Figure {p.key}-{k}: {_h(caption)}</div></div>')
@@ -1156,7 +1311,8 @@ def render_pdf(html_path, pdf_path, *, browser: str | os.PathLike | None = None,
         fd, tmp = tempfile.mkstemp(prefix=f".{pdf_path.name}.", suffix=".tmp", dir=folder)
         os.close(fd)
         try:
-            cmd = [exe, *_BROWSER_FLAGS, f"--user-data-dir={profile}", f"--print-to-pdf={tmp}", html_path.as_uri()]
+            cmd = [exe, *_BROWSER_FLAGS, f"--user-data-dir={profile}", f"--print-to-pdf={tmp}",
+                   html_path.as_uri() + "#print"]
             try:
                 proc = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, timeout=timeout,
                                       check=False)

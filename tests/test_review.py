@@ -73,8 +73,20 @@ def check_rows(doc: str):
     return p.rows
 
 
+def _pdf_image_widths(reader) -> list[bool]:
+    """For every image XObject of the PDF: is it at least 600 px wide (a plot, not an icon)?"""
+    out = []
+    for page in reader.pages:
+        xobjects = (page.get("/Resources") or {}).get("/XObject") or {}
+        for ref in xobjects.values():
+            obj = ref.get_object()
+            if obj.get("/Subtype") == "/Image":
+                out.append(int(obj["/Width"]) >= 600)
+    return out
+
+
 def results_of(sheet):
-    return {p.key: p.result for p in sheet.parts if p.result is not None}
+    return {k: v for p in sheet.parts for k, v in p.options.items()}
 
 
 @pytest.fixture(scope="module")
@@ -82,24 +94,35 @@ def sheet(greenhouse):
     return build_review(greenhouse, source_path="examples/greenhouse_tray_3cable.toml", date=DATE)
 
 
+_FAKE_CHECKS = [
+    Check("fake_pass", "winch 1", "fake passing check", 1.0, 2.0, "N", 1.0, PASS, "fake source A, clause 1"),
+    Check("fake_warn", "cable post B", "fake warning check", 1.9, 2.0, "N", 0.1, WARN,
+          "common practice, no source", "close to its limit"),
+    Check("fake_fail", "task region", "fake failing check", 3.5, 2.0, "N", -1.5, FAIL,
+          "fake standard B, table 7", "cable post C over its limit at x = 1.2 m"),
+]
+
+
+def _install_fake(monkeypatch, checks, *, alone: bool):
+    mod = types.ModuleType("ck_fake_provider")
+    mod.design_checks = lambda design, **options: list(checks)
+    monkeypatch.setitem(sys.modules, "ck_fake_provider", mod)
+    providers = [] if alone else list(checks_mod.CHECK_PROVIDERS)
+    monkeypatch.setattr(checks_mod, "CHECK_PROVIDERS", [*providers, "ck_fake_provider:design_checks"])
+    if alone:  # no analysis module: a quick sheet for testing the command line's exit codes
+        monkeypatch.setattr(review, "_analysis_parts", lambda: [])
+
+
 @pytest.fixture()
 def fake_provider(monkeypatch):
-    """A check provider owning one passing, one warning and one failing check."""
-    mod = types.ModuleType("ck_fake_provider")
+    """Every installed provider plus one owning a passing, a warning and a failing check."""
+    _install_fake(monkeypatch, _FAKE_CHECKS, alone=False)
 
-    def design_checks(design, **options):
-        return [
-            Check("fake_pass", "winch 1", "fake passing check", 1.0, 2.0, "N", 1.0, PASS, "fake source A, clause 1"),
-            Check("fake_warn", "cable post B", "fake warning check", 1.9, 2.0, "N", 0.1, WARN,
-                  "common practice, no source", "close to its limit"),
-            Check("fake_fail", "task region", "fake failing check", 3.5, 2.0, "N", -1.5, FAIL,
-                  "fake standard B, table 7", "cable post C over its limit at x = 1.2 m"),
-        ]
 
-    mod.design_checks = design_checks
-    monkeypatch.setitem(sys.modules, "ck_fake_provider", mod)
-    monkeypatch.setattr(checks_mod, "CHECK_PROVIDERS", [*checks_mod.CHECK_PROVIDERS, "ck_fake_provider:design_checks"])
-    return mod
+@pytest.fixture()
+def only_fake(monkeypatch):
+    """Only the fake provider (no analysis modules): ``only_fake(checks)`` chooses its checks."""
+    return lambda checks: _install_fake(monkeypatch, checks, alone=True)
 
 
 def _num(v):
@@ -174,9 +197,10 @@ def test_every_check_appears_with_its_source(sheet, greenhouse):
     assert len(rows) == len(sheet.checks)
     for c, (attrs, cells) in zip(sheet.checks, rows):
         assert attrs["data-key"] == c.key and attrs["data-status"] == c.status
-        assert cells[1] == c.status.upper() and cells[2] == c.title and cells[3] == c.subject
-        assert cells[4:7] == [_num(c.value), _num(c.limit), _num(c.margin)]
-        assert cells[-1] == c.source and c.source
+        assert cells[1] == c.status.upper() and cells[2] == c.title + c.subject
+        unit = f" {c.unit}" if c.unit else ""
+        assert cells[3:6] == [_num(c.value) + unit, _num(c.limit) + unit, _num(c.margin) + unit]
+        assert cells[6] == c.detail and cells[-1] == c.source and c.source
     assert sheet.status == checks_mod.worst_status(sheet.checks)
 
 
@@ -192,16 +216,17 @@ def test_missing_modules_are_said_plainly(sheet):
         assert "Incomplete:" in sheet.html
 
 
-def test_failing_checks_show_fail_and_the_reason(greenhouse, fake_provider):
-    s = build_review(greenhouse, date=DATE)
+def test_failing_checks_show_fail_and_the_reason(greenhouse, sheet, fake_provider):
+    s = build_review(greenhouse, date=DATE, results=results_of(sheet))
+    assert [c.key for c in s.checks[-3:]] == ["fake_pass", "fake_warn", "fake_fail"]
     assert s.status == FAIL
-    assert [c.key for c in s.failures] == ["fake_fail"] and [c.key for c in s.warnings] == ["fake_warn"]
+    assert s.failures[-1].key == "fake_fail" and s.warnings[-1].key == "fake_warn"
     banner = s.html.split('id="overall"', 1)[1].split('<table class="kv">', 1)[0]
-    assert "FAIL: 1 of" in banner and "What fails and why" in banner
+    assert f"FAIL: {len(s.failures)} of {len(s.checks)} checks fail" in banner and "What fails and why" in banner
     assert "cable post C over its limit at x = 1.2 m" in banner and "fake standard B, table 7" in banner
     rows = {a["data-key"]: (a, cells) for a, cells in check_rows(s.html)}
     attrs, cells = rows["fake_fail"]
-    assert 'fail' in attrs["class"] and cells[1] == "FAIL" and "over its limit" in cells[8]
+    assert 'fail' in attrs["class"] and cells[1] == "FAIL" and "over its limit" in cells[6]
     assert rows["fake_pass"][1][-1] == "fake source A, clause 1"
 
 
@@ -212,17 +237,17 @@ def test_a_real_design_that_fails_a_check(greenhouse):
     heavy = greenhouse.with_changes(payload=replace(greenhouse.payload, mass=25.0))
     s = build_review(heavy, date=DATE)
     assert s.status == FAIL and s.failures
-    rows = {a["data-key"] + "|" + cells[3]: cells for a, cells in check_rows(s.html)}
+    rows = {a["data-key"] + "|" + cells[2]: cells for a, cells in check_rows(s.html)}
     for c in s.failures:
-        cells = rows[c.key + "|" + c.subject]
+        cells = rows[c.key + "|" + c.title + c.subject]
         assert cells[1] == "FAIL" and cells[-1] == c.source
         assert c.title in s.html.split('id="overall"', 1)[1].split("</header>", 1)[0]
 
 
-def test_user_text_is_escaped(greenhouse):
+def test_user_text_is_escaped(greenhouse, sheet):
     evil = greenhouse.with_changes(meta=replace(greenhouse.meta, name="<script>alert(1)</script> & co",
                                                 job='say "hi" <b>'))
-    doc = build_review(evil, date=DATE).html
+    doc = build_review(evil, date=DATE, results=results_of(sheet)).html
     assert "<script>alert(1)" not in doc and "&lt;script&gt;alert(1)&lt;/script&gt; &amp; co" in doc
     assert "<b>'" not in doc
 
@@ -263,6 +288,11 @@ def test_tension_range_matches_hand_statics(sheet, greenhouse):
     t = np.linalg.solve(np.transpose(u, (0, 2, 1)), np.broadcast_to([0.0, 0.0, weight], p.shape)[..., None])[..., 0]
     lim = tension_limits(d)
     ok = np.all((t >= lim.t_min) & (t <= lim.t_max), axis=1)
+    ws = results_of(sheet).get("workspace")
+    if ws is not None:  # the sheet takes the range over the workspace's feasible poses (tensions and geometry)
+        assert np.array_equal(ws.poses, p)
+        assert np.all(ok[ws.feasible])
+        ok = ws.feasible
     for i, n in enumerate(d.cable_names):
         q = sheet.quantity(f"tension:{n}")
         # rtol: two different linear solvers on well-conditioned 3x3 systems
@@ -288,6 +318,7 @@ def test_offline_and_plotly_inlined_once(sheet):
 
 
 def test_same_design_same_sheet_apart_from_the_date(sheet, greenhouse):
+    # computed afresh (no results handed over): every module's result must be reproducible
     other = build_review(greenhouse, source_path="examples/greenhouse_tray_3cable.toml", date="1999-12-31")
     assert other.html != sheet.html
     assert other.html.replace("1999-12-31", DATE) == sheet.html
@@ -315,6 +346,7 @@ needs_chromium = pytest.mark.skipif(not shutil.which(CHROMIUM), reason="Debian c
 
 
 @pytest.mark.browser
+@pytest.mark.slow
 @needs_chromium
 def test_html_renders_in_headless_chromium(tmp_path, sheet, artifacts_dir):
     sync_api = pytest.importorskip("playwright.sync_api")
@@ -355,21 +387,26 @@ def test_html_renders_in_headless_chromium(tmp_path, sheet, artifacts_dir):
 
 
 @pytest.mark.browser
+@pytest.mark.slow
 @needs_chromium
-def test_pdf_opens_and_has_pages(tmp_path, greenhouse):
+def test_pdf_opens_and_has_pages(tmp_path, greenhouse, sheet):
     pypdf = pytest.importorskip("pypdf")
     html_path, pdf_path = tmp_path / "out" / "r.html", tmp_path / "out" / "r.pdf"
-    s = write_review(greenhouse, html_path, pdf=pdf_path, date=DATE)
+    s = write_review(greenhouse, html_path, pdf=pdf_path, date=DATE, results=results_of(sheet))
     reader = pypdf.PdfReader(str(pdf_path))
     assert len(reader.pages) >= 4
     text = "".join(page.extract_text() for page in reader.pages)
     flat = re.sub(r"\s+", "", text)
     assert "Designreview" in flat and "Approvedby(responsibleengineer)" in flat and s.content_hash in flat
     assert "Suspendedloadsandstoredenergy" in flat
+    # every WebGL (3-D) plot went in as a printed image copy: WebGL canvases print blank
+    n_gl = sum(1 for p in s.parts for _, f in p.figures if any(t.type.endswith(("3d", "gl")) for t in f.data))
+    assert n_gl and _pdf_image_widths(reader).count(True) >= n_gl
     if shutil.which("pdftoppm"):
         subprocess.run(["pdftoppm", "-r", "30", "-f", "1", "-l", "1", "-png", str(pdf_path), str(tmp_path / "p")],
                        check=True, timeout=60)
-        assert (tmp_path / "p-1.png").stat().st_size > 1000 or (tmp_path / "p-01.png").stat().st_size > 1000
+        pngs = list(tmp_path.glob("p-*.png"))
+        assert len(pngs) == 1 and pngs[0].stat().st_size > 1000
     assert not [p for p in pdf_path.parent.iterdir() if p.name.endswith(".tmp")]
 
 
@@ -390,9 +427,19 @@ def test_cli_writes_the_sheet_and_exit_code_follows_the_checks(tmp_path, capsys)
     status = re.search(r'id="overall" data-status="(\w+)"', doc).group(1)
     assert rc == (EXIT_CHECK_FAILED if status == FAIL else EXIT_OK)
     assert f"wrote {out}" in capsys.readouterr().out
+    assert f'<span class="date">{DATE}</span>' in doc
 
 
-def test_cli_exit_4_on_a_failing_design_and_the_sheet_is_written(tmp_path, capsys, fake_provider):
+def test_cli_exit_0_when_every_check_passes(tmp_path, capsys, only_fake):
+    only_fake(_FAKE_CHECKS[:1])
+    out = tmp_path / "review.html"
+    assert main(["review", str(GREENHOUSE), "-o", str(out), "-q"]) == EXIT_OK
+    assert 'data-status="pass"' in out.read_text(encoding="utf-8")
+    assert "1 checks, 1 pass, 0 warn, 0 fail" in capsys.readouterr().out
+
+
+def test_cli_exit_4_on_a_failing_design_and_the_sheet_is_written(tmp_path, capsys, only_fake):
+    only_fake(_FAKE_CHECKS)
     out = tmp_path / "review.html"
     assert main(["review", str(GREENHOUSE), "-o", str(out), "-q"]) == EXIT_CHECK_FAILED
     assert 'data-status="fail"' in out.read_text(encoding="utf-8")
