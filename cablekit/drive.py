@@ -264,6 +264,14 @@ def _use(c: Check) -> float:
     return c.value / c.limit if c.limit > 0 else math.inf
 
 
+def numbers_text(c: Check) -> str:
+    """``": 25 (limit 28)"`` with the unit spelled for reading; empty when there is nothing to compare."""
+    if c.key == "brake" or not (math.isfinite(c.value) and math.isfinite(c.limit)):
+        return ""
+    unit = {"-": "", "d": " rope diameters"}.get(c.unit, f" {c.unit}")
+    return f": {c.value:.4g}{unit} (limit {c.limit:.4g}{unit})"
+
+
 @dataclass(frozen=True)
 class DriveResult:
     """Per-winch drivetrain sizing and checks.
@@ -310,8 +318,7 @@ class DriveResult:
         if notable:
             lines.append("  checks not passed:")
             for c in notable:
-                lines.append(f"    {c.status.upper():<4} {c.subject}: {c.title}: {c.value:.4g} {c.unit} "
-                             f"(limit {c.limit:.4g} {c.unit}) - {c.detail}")
+                lines.append(f"    {c.status.upper():<4} {c.subject}: {c.title}{numbers_text(c)} - {c.detail}")
         counts = {s: sum(c.status == s for c in self.checks) for s in (PASS, WARN, FAIL)}
         lines.append(f"  {len(self.checks)} checks: {counts[PASS]} pass, {counts[WARN]} warn, {counts[FAIL]} fail")
         lines.append(f"  {CAUTION}")
@@ -322,14 +329,14 @@ class DriveResult:
         import plotly.graph_objects as go
 
         keys = []
-        for c in self.checks:
-            if c.key not in keys and math.isfinite(c.value) and math.isfinite(c.limit):
+        for c in self.checks:  # the brake has no ratio to show (a brake is fitted or not)
+            if c.key not in keys and c.key != "brake" and math.isfinite(c.value) and math.isfinite(c.limit):
                 keys.append(c.key)
         titles = {c.key: c.title for c in self.checks}
         fig = go.Figure()
         for r in self.rows:
             by_key = {c.key: c for c in r.checks}
-            ys = [100 * _use(by_key[k]) if k in by_key else None for k in keys]
+            ys = [100 * _use(by_key[k]) if k in by_key and math.isfinite(_use(by_key[k])) else None for k in keys]
             fig.add_trace(go.Bar(name=r.name, x=[titles[k] for k in keys], y=ys,
                                  hovertemplate="%{x}: %{y:.0f} % of the limit<extra>" + r.name + "</extra>"))
         fig.add_hline(y=100, line_dash="dash", line_color="#c0392b", annotation_text="limit")

@@ -195,7 +195,10 @@ def test_checks_carry_value_limit_margin_status_and_source(greenhouse_drive):
     lines = greenhouse_drive.summary()
     assert any("limiting item" in line for line in lines)
     assert any("competent person" in line for line in lines)
-    assert len(greenhouse_drive.figure().data) == 3
+    fig = greenhouse_drive.figure()
+    assert len(fig.data) == 3
+    assert all(y is None or math.isfinite(y) for t in fig.data for y in t.y)
+    assert "holding brake" not in fig.data[0].x
 
 
 def test_design_checks_provider_is_found_by_run_all(greenhouse):

@@ -28,7 +28,7 @@ def _progress(done: int, total: int) -> None:
 
 
 def run(args) -> int:
-    from ..drive import size_drives
+    from ..drive import numbers_text, size_drives
     from ..units import UnitError, parse_quantity
 
     d = load_design(args.design)
@@ -49,7 +49,6 @@ def run(args) -> int:
     if args.all_checks:
         print("  every check:")
         for c in res.checks:
-            print(f"    {c.status.upper():<4} {c.subject}: {c.title}: {c.value:.4g} {c.unit} (limit {c.limit:.4g} "
-                  f"{c.unit}; source: {c.source})")
+            print(f"    {c.status.upper():<4} {c.subject}: {c.title}{numbers_text(c)} - {c.detail} [source: {c.source}]")
     print(lines[-1])
     return EXIT_CHECK_FAILED if res.status == "fail" else EXIT_OK
