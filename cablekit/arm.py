@@ -672,7 +672,7 @@ def levelling_angles(arm: Arm, platform_rotations, up, *, max_iter: int = 40) ->
     N = Rp.shape[0]
     up = np.asarray(up, float) / np.linalg.norm(up)
     Rm = mount_rotation(arm)
-    v = np.einsum("ji,njk,k->ni", Rm, Rp, up)  # up in the base frame: Rm^T Rp^T up
+    v = np.einsum("ji,nkj,k->ni", Rm, Rp, up)  # up in the base frame: Rm^T Rp^T up
     v_ref = Rm.T @ up
     L = len(arm.levelling)
     home = arm.home[:L]
@@ -799,7 +799,8 @@ def _joint_grid(arm: Arm, max_samples: int) -> np.ndarray:
     if not free:
         return arm.home[None, :]
     per = max(2, min(41, int(math.floor(max_samples ** (1.0 / len(free)) + 1e-9))))
-    axes = [np.linspace(arm.joints[k].lower, arm.joints[k].upper, per) for k in free]
+    axes = [np.unique(np.r_[np.linspace(arm.joints[k].lower, arm.joints[k].upper, per), arm.joints[k].home])
+            for k in free]  # the limits and the home value are always sampled
     mesh = np.meshgrid(*axes, indexing="ij")
     q = np.tile(arm.home, (mesh[0].size, 1))
     for k, m in zip(free, mesh):
@@ -814,7 +815,8 @@ def reach(arm: Arm, *, gravity=(0.0, 0.0, -9.80665), max_samples: int = 20_000, 
     Parameters
     ----------
     gravity : world gravity [m/s**2]; the platform is level and the levelling joints at home.
-    max_samples : budget for the joint grid (every non-levelling joint from lower to upper).
+    max_samples : budget for the joint grid (every non-levelling joint from lower to upper, its
+        home value included).
     holding : count the payload at the tool tip (the worst case for the servos).
     joints : (N, n) explicit samples instead of the grid.
     """
