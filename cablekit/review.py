@@ -461,16 +461,27 @@ def _h(text: Any) -> str:
     return html.escape(str(text), quote=True)
 
 
+_UNIT_GLYPHS = (("**2", "²"), ("**3", "³"), ("^2", "²"), ("^3", "³"), ("*", "·"))
+
+
+def _unit(unit: str) -> str:
+    """A unit as printed on the sheet: ``N*m`` -> ``N·m``, ``m^2`` -> ``m²``, ``um`` -> ``µm``."""
+    for a, b in _UNIT_GLYPHS:
+        unit = unit.replace(a, b)
+    return {"um": "µm", "-": ""}.get(unit, unit)
+
+
 def _si(value: float, unit: str) -> str:
+    """An SI value shown in ``unit`` with the unit."""
     from .units import to_unit
 
-    return f"{_num(to_unit(value, unit))} {unit}".strip()
+    return f"{_num(to_unit(value, unit))} {_unit(unit)}".strip()
 
 
 def _vec(values, unit: str) -> str:
     from .units import to_unit
 
-    return "(" + ", ".join(_num(to_unit(v, unit)) for v in values) + f") {unit}"
+    return "(" + ", ".join(_num(to_unit(v, unit)) for v in values) + f") {_unit(unit)}"
 
 
 def _table(headers: list[str], rows: list[list[str]], *, cls: str = "", row_attrs: list[str] | None = None) -> str:
@@ -650,13 +661,20 @@ def _stage_progress(progress: Progress) -> Callable[[str, int, int], None]:
 
 
 def _module_equations(mod, design) -> tuple[tuple[str, str], ...]:
-    """The module's own LaTeX (``latex_equations(design)`` or ``latex_equations()``) if it has any."""
+    """The module's own LaTeX, ``latex_equations()``, ``latex_equations(kind)`` or
+    ``latex_equations(design)``; empty when it has none."""
     fn = getattr(mod, "latex_equations", None)
     if fn is None:
         return ()
     import inspect
 
-    eqs = fn(design) if inspect.signature(fn).parameters else fn()
+    params = list(inspect.signature(fn).parameters)
+    if not params:
+        eqs = fn()
+    elif params[0] == "kind":
+        eqs = fn(design.platform.kind)
+    else:
+        eqs = fn(design)
     return tuple(eqs.items()) if isinstance(eqs, Mapping) else tuple(eqs)
 
 
@@ -666,17 +684,81 @@ def _analysis_parts():
         ("workspace", "Workspace: task-region coverage and tension margins", "cablekit.workspace",
          "task-region coverage, tension margins and interference", _workspace_part),
         ("drive", "Drivetrain, cables and stiffness", "cablekit.drive",
-         "drum, gears, motor, encoder, rope and stiffness checks", _checks_only_part),
+         "drum, gears, motor, encoder, rope and stiffness checks", _drive_part),
         ("accuracy", "Accuracy: predicted positioning error over the task region", "cablekit.accuracy",
          "positioning accuracy", _accuracy_part),
         ("arm", "Arm: reach and servo loads", "cablekit.arm", "arm reach and servo loads", _arm_part),
     ]
 
 
-def _checks_only_part(key, title, mod, design, results, progress) -> Part:
-    """A module whose results the sheet does not plot: its checks still run."""
-    return Part(key=key, title=title, module=mod.__name__, available=True,
-                summary=("Checks only: this module's result plots are not on the sheet.",))
+def _drive_part(key, title, mod, design, results, progress) -> Part:
+    """Drivetrain sizing (cablekit.drive), stiffness and natural frequency (cablekit.stiffness),
+    cable sag against the straight-cable model (cablekit.cables), on the workspace's feasible
+    poses and tensions when there is a workspace result."""
+    ws = results.get("workspace")
+    drive = results.get("drive")
+    if drive is None:
+        drive = mod.size_drives(design, workspace=ws)
+    summary = list(drive.summary())
+    figures = [("Drivetrain and rope checks: share of each limit used, per winch (100 % = at the limit)",
+                drive.figure())]
+    q: list[Quantity] = []
+    for r in drive.rows:
+        src = "cablekit.drive.size_drives"
+        q += [Quantity(f"winch_tension:{r.name}", "highest tension at the winch end", r.max_tension, r.max_tension,
+                       "N", r.name, src),
+              Quantity(f"motor_torque:{r.name}", "static motor torque at that tension", r.torque, r.torque, "N*m",
+                       r.name, src),
+              Quantity(f"brake_torque:{r.name}", "holding torque a brake must give (motor shaft)", r.brake_torque,
+                       r.brake_torque, "N*m", r.name, src),
+              Quantity(f"travel:{r.name}", "cable travel (longest - shortest length)", r.travel, r.travel, "m",
+                       r.name, src)]
+    eqs = list(_module_equations(mod, design))
+    not_checked = ["Drivetrain: rotor and drum inertia, gear backlash and the motor's thermal limits."]
+    if ws is not None and np.any(ws.feasible):
+        poses, tensions = ws.poses[ws.feasible], ws.tensions[ws.feasible]
+    else:
+        poses = tensions = None
+    stiff_mod, cables_mod = _module("cablekit.stiffness"), _module("cablekit.cables")
+    if stiff_mod is not None and hasattr(stiff_mod, "stiffness_map"):
+        progress("  stiffness and natural frequency")
+        st = stiff_mod.stiffness_map(design, poses=poses, tensions=tensions)
+        summary += [""] + list(st.summary())
+        figures.append(("Lowest natural frequency of the platform over the feasible task poses (winches locked)",
+                        st.figure(color="frequency")))
+        eqs += _module_equations(stiff_mod, design)
+        if np.any(st.valid):
+            src = "cablekit.stiffness.stiffness_map"
+            k, f, dn = st.min_stiffness[st.valid], st.frequency[st.valid], st.deflection_norm[st.valid]
+            q += [Quantity("stiffness", "platform stiffness, weakest direction (lowest … median)", float(k.min()),
+                           float(np.median(k)), "N/mm", source=src),
+                  Quantity("natural_frequency", "lowest natural frequency (lowest … median)", float(f.min()),
+                           float(np.median(f)), "Hz", source=src),
+                  Quantity("deflection", f"largest deflection when the payload changes by {st.payload_change:g} kg",
+                           float(dn.max()), float(dn.max()), "mm", source=src)]
+        not_checked.append("Stiffness: drum, gear, pulley and frame compliance are not included (winches locked).")
+    else:
+        not_checked.append("Stiffness and natural frequency: not checked (cablekit.stiffness is not installed).")
+    if cables_mod is not None and hasattr(cables_mod, "sag_map"):
+        progress("  cable sag")
+        sg = cables_mod.sag_map(design, poses=poses, tensions=tensions)
+        summary += [""] + list(sg.summary())
+        eqs += _module_equations(cables_mod, design)
+        if np.any(sg.valid):
+            src = "cablekit.cables.sag_map"
+            big = float(np.max(np.where(sg.valid, sg.sag, -np.inf)))
+            q.append(Quantity("sag", "largest cable sag (elastic catenary)", big, big, "mm", source=src))
+            n_flag = int(np.sum(sg.pose_flagged))
+            q.append(Quantity("sag_flagged", "poses where sag changes a cable's length or direction beyond the "
+                              "practice thresholds", n_flag, n_flag, "poses", source=src))
+            if n_flag:
+                not_checked.append(f"Sag: at {n_flag} of {len(sg.poses)} poses the sag changes a cable's length or "
+                                   "direction beyond the practice thresholds; the straight-cable results (lengths, "
+                                   "counts, tensions) are approximate there.")
+    else:
+        not_checked.append("Cable sag: not checked (cablekit.cables has no sag model installed).")
+    return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(summary),
+                figures=tuple(figures), quantities=tuple(q), equations=tuple(eqs), not_checked=tuple(not_checked))
 
 
 def _workspace_part(key, title, mod, design, results, progress) -> Part:
@@ -712,7 +794,6 @@ _ACCURACY_EQUATIONS = (
     ("first-order propagation", r"\delta\mathbf{q} = J^{+} \left(\delta\mathbf{L} - J_a\,\delta\mathbf{a}\right),"
                                 r"\quad J = \frac{\partial \mathbf{L}}{\partial \mathbf{q}}"),
     ("rectangular error of half-width a (GUM 4.3.7)", r"u = \frac{a}{\sqrt{3}}"),
-    ("elastic stretch", r"\Delta L_i = \frac{t_i L_i}{E A}"),
 )
 
 
@@ -840,6 +921,8 @@ table { border-collapse: collapse; width: 100%; margin: 4pt 0 8pt 0; font-size: 
 th, td { border: 1px solid var(--rule); padding: 2pt 4pt; text-align: left; vertical-align: top; }
 thead th { background: #eef2f6; }
 table.checks td:nth-child(n+4):nth-child(-n+6) { white-space: nowrap; }
+table.checks td:nth-child(3) { width: 24%; }
+table.checks .source { font-size: 8pt; color: var(--muted); margin-top: 2pt; }
 table.kv th { width: 38%; font-weight: normal; color: var(--muted); background: none; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .meta { color: var(--muted); font-size: 9pt; }
@@ -963,8 +1046,8 @@ def _section(anchor: str, title: str, content: str) -> str:
 
 def _render_header(design, *, checks, status, missing, digest, date, source_path) -> str:
     n = len(checks)
-    fails = [c for c in checks if c.status == FAIL]
-    warns = [c for c in checks if c.status == WARN]
+    fails = [(k, c) for k, c in enumerate(checks, start=1) if c.status == FAIL]
+    warns = [(k, c) for k, c in enumerate(checks, start=1) if c.status == WARN]
     if n == 0:
         headline, cls = "NO CHECKS RAN", "none"
     elif fails:
@@ -976,13 +1059,11 @@ def _render_header(design, *, checks, status, missing, digest, date, source_path
     lines = [f'<div class="banner {cls}" id="overall" data-status="{status}"><div class="big">{_h(headline)}</div>']
     if fails:
         lines.append("<p><b>What fails and why:</b></p><ul>")
-        for c in fails:
-            lines.append(f"<li>{_check_sentence(c)}</li>")
+        lines += [f"<li>{_check_sentence(c, k)}</li>" for k, c in fails]
         lines.append("</ul>")
     if warns:
         lines.append("<p><b>Warnings:</b></p><ul>")
-        for c in warns:
-            lines.append(f"<li>{_check_sentence(c)}</li>")
+        lines += [f"<li>{_check_sentence(c, k)}</li>" for k, c in warns]
         lines.append("</ul>")
     if missing:
         lines.append(f'<p class="notchecked"><b>Incomplete:</b> not checked because the module is not installed: '
@@ -996,12 +1077,12 @@ def _render_header(design, *, checks, status, missing, digest, date, source_path
             + "\n".join(lines) + "\n" + info + "\n</header>")
 
 
-def _check_sentence(c: Check) -> str:
-    text = (f"{_badge(c.status)} <b>{_h(c.title)}</b> ({_h(c.subject)}): {_num(c.value)} {_h(c.unit)} against "
-            f"the limit {_num(c.limit)} {_h(c.unit)}, margin {_num(c.margin)} {_h(c.unit)}")
-    if c.detail:
-        text += f". {_h(c.detail)}"
-    return text + f' <span class="meta">[{_h(c.source)}]</span>'
+def _check_sentence(c: Check, k: int) -> str:
+    """One line for the banner: what, where, value against limit, and why (the source is in the table)."""
+    u = f" {_h(_unit(c.unit))}" if _unit(c.unit) else ""
+    text = (f"{_badge(c.status)} <b>{_h(c.title)}</b> ({_h(c.subject)}): {_num(c.value)}{u} against "
+            f"the limit {_num(c.limit)}{u}, margin {_num(c.margin)}{u}")
+    return text + (f". {_h(c.detail)}" if c.detail else "") + f' <a href="#check-{k}">(check {k})</a>'
 
 
 # -- inputs -----------------------------------------------------------------------------
@@ -1028,7 +1109,7 @@ def _render_inputs(design) -> str:
     prow = [("kind", f"{_h(p.kind)} ({p.dof} degrees of freedom)"), ("platform mass", _si(p.mass, "kg")),
             ("platform centre of mass", _vec(p.center_of_mass, "mm"))]
     if p.kind == "rigid":
-        prow += [("inertia about the centre of mass", _vec(p.inertia, "kg*m^2").replace("kg*m^2", "kg·m²")),
+        prow += [("inertia about the centre of mass", _vec(p.inertia, "kg*m^2")),
                  ("body half-size", _vec(p.body_half_size, "mm"))]
     prow += [("payload", f"{_h(d.payload.name)}: {_si(d.payload.mass, 'kg')}"),
              ("payload centre of mass", _vec(d.payload.center_of_mass, "mm")),
@@ -1058,8 +1139,8 @@ def _render_inputs(design) -> str:
               ("decoding (counts per line)", lambda w: f"x{w.decoding}"),
               ("controller deadband", lambda w: f"{_num(w.deadband_counts)} counts"),
               ("count-rate limit", lambda w: _si(w.count_rate_limit, "kHz")),
-              ("motor rated torque", lambda w: _si(w.motor_rated_torque, "N*m").replace("N*m", "N·m")),
-              ("motor peak torque", lambda w: _si(w.motor_peak_torque, "N*m").replace("N*m", "N·m")),
+              ("motor rated torque", lambda w: _si(w.motor_rated_torque, "N*m")),
+              ("motor peak torque", lambda w: _si(w.motor_peak_torque, "N*m")),
               ("motor rated speed", lambda w: _si(w.motor_rated_speed, "rpm")),
               ("holding brake", lambda w: "yes" if w.brake else "<b>no</b>"),
               ("dead wraps", lambda w: _num(w.dead_wraps))]
@@ -1076,11 +1157,11 @@ def _render_inputs(design) -> str:
         trow.append(("orientations (roll, pitch, yaw)", "; ".join(_vec(o, "deg") for o in t.orientations)))
     trow += [("grid step", _si(t.step, "mm")),
              ("highest speed", _si(t.speed, "m/s") if t.speed else "not given"),
-             ("highest acceleration", _si(t.acceleration, "m/s^2").replace("m/s^2", "m/s²") if t.acceleration
+             ("highest acceleration", _si(t.acceleration, "m/s^2") if t.acceleration
               else "not given")]
     if any(t.wrench_box):
         trow.append(("task wrench box (± half-widths)", _vec(t.wrench_box[:3], "N") + "; "
-                     + _vec(t.wrench_box[3:], "N*m").replace("N*m", "N·m")))
+                     + _vec(t.wrench_box[3:], "N*m")))
     home = d.home_pose
     trow.append(("home pose", _vec(home[:3], "m") + ("; " + _vec(home[3:], "deg") if d.dof == 6 else "")))
     out.append(_kv(trow))
@@ -1100,7 +1181,7 @@ def _render_quantities(design, parts) -> str:
     per_cable = [q for p in parts for q in p.quantities if q.cable is not None]
     out = []
     if rig_wide:
-        rows = [[_h(q.label), f'<span data-key="{_h(q.key)}">{q.display()}</span>', _h(q.unit),
+        rows = [[_h(q.label), f'<span data-key="{_h(q.key)}">{q.display()}</span>', _h(_unit(q.unit)),
                  f'<span class="meta">{_h(q.source)}</span>'] for q in rig_wide]
         out.append(_table(["quantity", "value", "unit", "computed by"], rows))
     if per_cable:
@@ -1110,7 +1191,7 @@ def _render_quantities(design, parts) -> str:
         by_key = {q.key: q for q in per_cable}
         rows = []
         for kind, (label, unit) in kinds.items():
-            cells = [f"{_h(label)} [{_h(unit)}]"]
+            cells = [f"{_h(label)} [{_h(_unit(unit))}]"]
             for n in names:
                 q = by_key.get(f"{kind}:{n}")
                 cells.append(f'<span data-key="{_h(q.key)}">{q.display()}</span>' if q else "–")
@@ -1131,13 +1212,14 @@ def _render_checks(checks, parts) -> str:
            "Margin is the distance from the limit in the check's unit, positive on the safe side.</p>"]
     rows, attrs = [], []
     for k, c in enumerate(checks, start=1):
-        unit = f" {_h(c.unit)}" if c.unit else ""
+        unit = f" {_h(_unit(c.unit))}" if _unit(c.unit) else ""
+        why = f'<div class="detail">{_h(c.detail)}</div>' if c.detail else ""
         rows.append([str(k), _badge(c.status), f'<b>{_h(c.title)}</b><div class="meta">{_h(c.subject)}</div>',
                      f'<span class="num">{_num(c.value)}</span>{unit}', f'<span class="num">{_num(c.limit)}</span>{unit}',
-                     f'<span class="num">{_num(c.margin)}</span>{unit}', _h(c.detail),
-                     f'<span class="source">{_h(c.source)}</span>'])
+                     f'<span class="num">{_num(c.margin)}</span>{unit}',
+                     f'{why}<div class="source">source: {_h(c.source)}</div>'])
         attrs.append(f'id="check-{k}" class="{c.status}" data-key="{_h(c.key)}" data-status="{c.status}"')
-    out.append(_table(["#", "status", "check", "value", "limit", "margin", "detail / reason", "source of the limit"],
+    out.append(_table(["#", "status", "check", "value", "limit", "margin", "reason and source of the limit"],
                       rows, cls="checks", row_attrs=attrs))
     return "\n".join(out)
 

@@ -34,27 +34,34 @@ GREENHOUSE = EXAMPLES / "greenhouse_tray_3cable.toml"
 # helpers
 # --------------------------------------------------------------------------------------
 class _Rows(HTMLParser):
-    """Collects the text of every row of ``<table class="checks">`` (and its data-key)."""
+    """Collects every row of ``<table class="checks">``: its attributes, the text of each cell,
+    and the text of its ``detail`` and ``source`` parts."""
 
     def __init__(self):
         super().__init__()
-        self.rows: list[tuple[dict, list[str]]] = []
+        self.rows: list[tuple[dict, list[str], dict]] = []
         self._in_table = False
         self._row = None
         self._cell = None
+        self._part = None
 
     def handle_starttag(self, tag, attrs):
         a = dict(attrs)
         if tag == "table" and a.get("class") == "checks":
             self._in_table = True
         elif self._in_table and tag == "tr" and "data-key" in a:
-            self._row = (a, [])
+            self._row = (a, [], {})
         elif self._row is not None and tag == "td":
             self._cell = []
+        elif self._row is not None and tag == "div" and a.get("class") in ("detail", "source"):
+            self._part = a["class"]
+            self._row[2][self._part] = ""
 
     def handle_endtag(self, tag):
         if tag == "table":
             self._in_table = False
+        elif tag == "div":
+            self._part = None
         elif tag == "td" and self._row is not None and self._cell is not None:
             self._row[1].append("".join(self._cell).strip())
             self._cell = None
@@ -65,6 +72,8 @@ class _Rows(HTMLParser):
     def handle_data(self, data):
         if self._cell is not None:
             self._cell.append(data)
+        if self._part is not None:
+            self._row[2][self._part] += data
 
 
 def check_rows(doc: str):
@@ -173,7 +182,11 @@ def test_sheet_has_every_section(sheet, greenhouse):
         assert f'<section id="{anchor}">' in doc
     assert greenhouse.meta.scenario[:40] in doc and greenhouse.meta.job[:40] in doc
     # inputs with units
-    for text in ("2 mm", "2.4 kN", "170 kN", "50 mm", "0.25 N·m", "3000 rpm", "100 kHz", "1.2 kg", "0.5 kg"):
+    d, w = greenhouse, greenhouse.winches[0]
+    for text in (f"{_num(d.cable.diameter * 1e3)} mm", f"{_num(d.cable.breaking_force / 1e3)} kN",
+                 f"{_num(d.cable.axial_stiffness / 1e3)} kN", f"{_num(w.drum_diameter * 1e3)} mm",
+                 f"{_num(w.motor_rated_torque)} N·m", f"{_num(w.motor_rated_speed * 60 / (2 * np.pi))} rpm",
+                 f"{_num(w.count_rate_limit / 1e3)} kHz", f"{_num(d.platform.mass)} kg", f"{_num(d.payload.mass)} kg"):
         assert text in doc, text
     # safety cautions, deferral to codes, the hash, the version and the sign-off block
     assert "out from under" in doc and "brakes" in doc and "emergency stop" in doc and "Inspect ropes" in doc
@@ -195,12 +208,12 @@ def test_every_check_appears_with_its_source(sheet, greenhouse):
     assert [c.key for c in again] == [c.key for c in sheet.checks]
     rows = check_rows(sheet.html)
     assert len(rows) == len(sheet.checks)
-    for c, (attrs, cells) in zip(sheet.checks, rows):
+    for c, (attrs, cells, parts) in zip(sheet.checks, rows):
         assert attrs["data-key"] == c.key and attrs["data-status"] == c.status
         assert cells[1] == c.status.upper() and cells[2] == c.title + c.subject
-        unit = f" {c.unit}" if c.unit else ""
+        unit = f" {review._unit(c.unit)}" if review._unit(c.unit) else ""
         assert cells[3:6] == [_num(c.value) + unit, _num(c.limit) + unit, _num(c.margin) + unit]
-        assert cells[6] == c.detail and cells[-1] == c.source and c.source
+        assert parts.get("detail", "") == c.detail and parts["source"] == f"source: {c.source}" and c.source
     assert sheet.status == checks_mod.worst_status(sheet.checks)
 
 
@@ -223,11 +236,12 @@ def test_failing_checks_show_fail_and_the_reason(greenhouse, sheet, fake_provide
     assert s.failures[-1].key == "fake_fail" and s.warnings[-1].key == "fake_warn"
     banner = s.html.split('id="overall"', 1)[1].split('<table class="kv">', 1)[0]
     assert f"FAIL: {len(s.failures)} of {len(s.checks)} checks fail" in banner and "What fails and why" in banner
-    assert "cable post C over its limit at x = 1.2 m" in banner and "fake standard B, table 7" in banner
-    rows = {a["data-key"]: (a, cells) for a, cells in check_rows(s.html)}
-    attrs, cells = rows["fake_fail"]
-    assert 'fail' in attrs["class"] and cells[1] == "FAIL" and "over its limit" in cells[6]
-    assert rows["fake_pass"][1][-1] == "fake source A, clause 1"
+    k = len(s.checks)  # the fake failing check is the last one: the banner links to its row
+    assert "cable post C over its limit at x = 1.2 m" in banner and f'href="#check-{k}"' in banner
+    rows = {a["data-key"]: (a, cells, parts) for a, cells, parts in check_rows(s.html)}
+    attrs, cells, parts = rows["fake_fail"]
+    assert "fail" in attrs["class"] and cells[1] == "FAIL" and "over its limit" in parts["detail"]
+    assert rows["fake_pass"][2]["source"] == "source: fake source A, clause 1"
 
 
 def test_a_real_design_that_fails_a_check(greenhouse):
@@ -237,10 +251,10 @@ def test_a_real_design_that_fails_a_check(greenhouse):
     heavy = greenhouse.with_changes(payload=replace(greenhouse.payload, mass=25.0))
     s = build_review(heavy, date=DATE)
     assert s.status == FAIL and s.failures
-    rows = {a["data-key"] + "|" + cells[2]: cells for a, cells in check_rows(s.html)}
+    rows = {a["data-key"] + "|" + cells[2]: (cells, parts) for a, cells, parts in check_rows(s.html)}
     for c in s.failures:
-        cells = rows[c.key + "|" + c.title + c.subject]
-        assert cells[1] == "FAIL" and cells[-1] == c.source
+        cells, parts = rows[c.key + "|" + c.title + c.subject]
+        assert cells[1] == "FAIL" and parts["source"] == f"source: {c.source}" and parts.get("detail", "") == c.detail
         assert c.title in s.html.split('id="overall"', 1)[1].split("</header>", 1)[0]
 
 
