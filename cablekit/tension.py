@@ -1,0 +1,725 @@
+"""Fast, exact tension distribution for many poses at once.
+
+Given the structure matrix ``W`` (N, n, m), the external wrench ``w`` (N, n) and per-cable
+limits ``t_min <= t <= t_max`` [N], find for every pose the **tension margin**
+
+    s* = max s  subject to  W t + w = 0,  t_min + s <= t <= t_max - s
+
+(the distance of the best tension vector to its nearest limit, see :mod:`cablekit.statics`),
+the tensions that reach it ("max-margin", i.e. centred in the limits), the cable that binds
+and whether it binds at its lower (slack) or upper limit.  The pose is wrench-feasible when
+``s* >= 0`` (Gouttefarde, Merlet and Daney 2007).
+
+Method (exact, no tolerance on the verdict)
+-------------------------------------------
+Write ``t = t0 + N lam`` with ``t0`` any particular solution and ``N`` (m, r) a basis of the
+null space of ``W`` (``r = m - n`` redundant cables), ``h_i = (t_max,i - t_min,i) / 2`` and
+``c_i = t0_i - (t_max,i + t_min,i) / 2``.  Then ``s* = max_lam min_i (h_i - |c_i + n_i . lam|)``,
+an LP in ``r + 1`` unknowns.  By LP duality its optimum is the least value over the vertices
+of the dual, and a dual vertex uses at most ``r + 1`` constraints (Helly-type / combinatorial
+dimension ``r + 1``).  For a set ``S`` of ``r + 1`` cables let ``alpha`` (supported on ``S``)
+span the vectors of the row space of ``W`` that vanish outside ``S``
+(``sum_i alpha_i n_i = 0``; for ``r = 2`` the 2-D cross products
+``alpha_i = n_j x n_k``, ``alpha_j = n_k x n_i``, ``alpha_k = n_i x n_j``).  Its value is
+
+    v(S) = (sum |alpha_i| h_i - |sum alpha_i c_i|) / sum |alpha_i|
+
+and ``s* = min( min_i h_i , min_S v(S) )``.  This is the null-space polygon test: for
+``r = 2`` the feasible tensions form a polygon in the 2-D null space, non-empty exactly when
+every triple of cable strips meets (Helly's theorem in the plane); ``v(S)`` is the margin at
+which the triple ``S`` stops meeting.  ``sum alpha_i c_i`` does not depend on the choice of
+``t0`` because ``alpha`` is orthogonal to the null space.
+
+A **wrench box** ``w + sum_k delta_k d_k``, ``|delta_k| <= 1`` is feasible exactly when all its
+vertices are (the feasible wrench set is convex); its margin is the least vertex margin.  Since
+``sum alpha_i c_i`` is affine in the wrench, the worst vertex adds
+``sum_k |sum_i alpha_i p_ik|`` to ``|sum alpha_i c_i|`` (``p_k`` a particular solution for
+``d_k``), so the box costs one extra sum per candidate instead of ``2^k`` solves.
+
+Paths: m = n reuses :func:`cablekit.statics.solve_square` (unique tensions); r = 1 and 2 use
+the candidate formula above, in a compiled kernel when numba is installed and in NumPy
+otherwise (both tested against each other and against scipy's LP); larger redundancy, rank-
+deficient poses, and the rare pose whose optimal tensions are not a unique vertex go to the
+per-pose HiGHS linear program (:func:`cablekit.statics.solve_lp`), so the classification
+is always exact.
+
+References
+----------
+Gouttefarde, M., Merlet, J.-P., Daney, D. "Wrench-feasible workspace of parallel cable-driven
+mechanisms". IEEE ICRA 2007 (definition of the wrench-feasible workspace).
+Bosscher, P., Riechel, A. T., Ebert-Uphoff, I. "Wrench-feasible workspace generation for
+cable-driven robots". IEEE Trans. Robotics 22(5), 2006 (feasibility of a wrench set from its
+vertices / convexity).
+Gosselin, C., Grenier, M. "On the determination of the force distribution in overconstrained
+cable-driven parallel mechanisms". Meccanica 46, 2011 (two-degree redundancy: the polygon in
+the null space).
+Pott, A. *Cable-Driven Parallel Robots: Theory and Application*. Springer, 2018, ch. 3
+(force distribution; closed-form methods are conservative as feasibility tests).
+"""
+
+from __future__ import annotations
+
+import os
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from itertools import combinations
+
+import numpy as np
+
+from .statics import TensionResult, solve_lp, solve_square
+
+__all__ = ["TensionDetail", "distribute", "box_generators", "box_vertices", "HAVE_NUMBA", "BACKENDS"]
+
+try:  # optional: a compiled kernel of the same exact test (about 10x the NumPy path)
+    import numba as _numba
+except ImportError:  # pragma: no cover - exercised on machines without numba
+    _numba = None
+
+HAVE_NUMBA = _numba is not None
+BACKENDS = ("auto", "numba", "numpy", "lp")
+CHUNK = 4096  # poses per NumPy chunk (keeps temporaries in cache)
+
+# per-pose status of the fast path
+_DONE, _TENSIONS_BY_LP, _BY_LP = 0, 1, 2
+
+
+@dataclass(frozen=True)
+class TensionDetail(TensionResult):
+    """A :class:`~cablekit.statics.TensionResult` with what the workspace map needs.
+
+    tensions : (N, m) max-margin tensions for the nominal wrench [N]; margin : (N,) least
+    tension margin over the wrench box (the nominal wrench when no box) [N]; feasible :
+    ``margin >= 0``; limiting_cable : (N,) the binding cable with the largest dual weight at
+    the worst wrench (-1 when no tensions balance the load); nominal_margin : (N,) margin for
+    the nominal wrench alone [N]; active_lower / active_upper : (N, m) cables at their lower
+    (slack side) / upper limit in the max-margin solution of the worst wrench; by_lp : (N,)
+    poses (partly) solved by the per-pose linear program.
+    """
+
+    nominal_margin: np.ndarray
+    active_lower: np.ndarray
+    active_upper: np.ndarray
+    by_lp: np.ndarray
+
+
+# --------------------------------------------------------------------------------------
+# wrench boxes
+# --------------------------------------------------------------------------------------
+def box_generators(half_widths, n: int) -> np.ndarray:
+    """Edge half-vectors ``d_k`` (k, n) of an axis-aligned wrench box with ``half_widths``.
+
+    Only non-zero half-widths make a generator; ``half_widths`` (n,) [N, N*m].
+    """
+    hw = np.asarray(half_widths, float).reshape(-1)
+    if hw.shape != (n,):
+        raise ValueError(f"wrench box needs {n} half-widths, got {hw.shape[0]}")
+    if not np.all(np.isfinite(hw)) or np.any(hw < 0):
+        raise ValueError(f"wrench box half-widths must be finite and not negative, got {hw.tolist()}")
+    idx = np.flatnonzero(hw > 0)
+    D = np.zeros((len(idx), n))
+    D[np.arange(len(idx)), idx] = hw[idx]
+    return D
+
+
+def box_vertices(w_ext, half_widths) -> np.ndarray:
+    """All ``2^k`` vertices of the wrench box around each wrench: (N, 2^k, n) [N, N*m]."""
+    w = np.atleast_2d(np.asarray(w_ext, float))
+    D = box_generators(half_widths, w.shape[1])
+    signs = np.array(np.meshgrid(*[[-1.0, 1.0]] * len(D), indexing="ij")).reshape(len(D), -1).T
+    return w[:, None, :] + (signs @ D)[None, :, :]
+
+
+# --------------------------------------------------------------------------------------
+# the exact candidate test: shared pieces
+# --------------------------------------------------------------------------------------
+def _subsets(m: int, r: int) -> np.ndarray:
+    return np.array(list(combinations(range(m), r + 1)), dtype=np.int64).reshape(-1, r + 1)
+
+
+def _alphas(nn: np.ndarray, r: int) -> np.ndarray:
+    """Dependency coefficients on each candidate subset: nn (..., r+1, r) -> (..., r+1)."""
+    if r == 1:
+        return np.stack([nn[..., 1, 0], -nn[..., 0, 0]], axis=-1)
+    n0, n1, n2 = nn[..., 0, :], nn[..., 1, :], nn[..., 2, :]
+    cross = lambda a, b: a[..., 0] * b[..., 1] - a[..., 1] * b[..., 0]  # noqa: E731
+    return np.stack([cross(n1, n2), cross(n2, n0), cross(n0, n1)], axis=-1)
+
+
+def _numpy_block(W, Rhs, mid, h, t_min, t_max):
+    """Exact test for one chunk in NumPy (r = 1 or 2).  Returns the per-pose arrays."""
+    c_, n, m = W.shape
+    r = m - n
+    Q, Rr = np.linalg.qr(np.swapaxes(W, 1, 2), mode="complete")  # W^T = Q R
+    R1 = Rr[:, :n, :]
+    d = np.abs(np.diagonal(R1, axis1=1, axis2=2))
+    scale = np.max(np.abs(W), axis=(1, 2))
+    ok = np.all(d > 1e-10 * np.maximum(scale, 1e-300)[:, None], axis=1)
+    R1 = np.where(ok[:, None, None], R1, np.eye(n))
+    Y = np.linalg.solve(np.swapaxes(R1, 1, 2), Rhs)  # R1^T Y = rhs
+    P = Q[:, :, :n] @ Y  # (c, m, nr): particular solutions (minimum norm)
+    Nn = Q[:, :, n:]  # (c, m, r): orthonormal null-space basis
+    cc = P[:, :, 0] - mid
+
+    sub = _subsets(m, r)  # (K, r+1)
+    al = _alphas(Nn[:, sub, :], r)  # (c, K, r+1)
+    aa = np.abs(al)
+    S = aa.sum(axis=2)
+    A = (aa * h[sub]).sum(axis=2)
+    B = (al * cc[:, sub]).sum(axis=2)
+    G = np.abs(np.einsum("ckj,ckjg->ckg", al, P[:, sub, 1:])).sum(axis=2) if P.shape[2] > 1 else 0.0
+    good = S > 1e-12 * np.max(np.sum(Nn * Nn, axis=2), axis=1)[:, None]
+    Ssafe = np.where(good, S, 1.0)
+    vn = np.where(good, (A - np.abs(B)) / Ssafe, np.inf)
+    vb = np.where(good, vn - G / Ssafe, np.inf)
+    hmin_i = int(np.argmin(h))
+    rows = np.arange(c_)
+    kn = np.argmin(vn, axis=1)
+    kb = np.argmin(vb, axis=1)
+    nom = np.minimum(vn[rows, kn], h[hmin_i])
+    box = np.minimum(vb[rows, kb], h[hmin_i])
+    single_n = h[hmin_i] <= vn[rows, kn]
+    single_b = h[hmin_i] <= vb[rows, kb]
+
+    # tensions at the nominal optimum: the active constraints of the binding subset
+    aln = al[rows, kn]  # (c, r+1)
+    sn = np.where(B[rows, kn] >= 0, 1.0, -1.0)
+    Sn = S[rows, kn]
+    degenerate = single_n | np.any(np.abs(aln) <= 1e-9 * Sn[:, None], axis=1)
+    sig = np.sign(aln) * sn[:, None]
+    cs = sub[kn]  # (c, r+1) cable indices
+    nsub = Nn[rows[:, None], cs]  # (c, r+1, r)
+    rhs = sig * (h[cs] - nom[:, None]) - cc[rows[:, None], cs]
+    if r == 1:
+        j = np.argmax(np.abs(nsub[:, :, 0]), axis=1)
+        den = nsub[rows, j, 0]
+        lam = (rhs[rows, j] / np.where(den == 0, 1.0, den))[:, None]
+    else:
+        big = np.argmax(np.abs(aln), axis=1)  # solve with the other two cables
+        ja = np.where(big == 0, 1, 0)
+        jb = np.where(big == 2, 1, 2)
+        na, nb = nsub[rows, ja], nsub[rows, jb]
+        det = na[:, 0] * nb[:, 1] - na[:, 1] * nb[:, 0]
+        det = np.where(det == 0, 1.0, det)
+        ra, rb = rhs[rows, ja], rhs[rows, jb]
+        lam = np.stack([(ra * nb[:, 1] - na[:, 1] * rb) / det, (na[:, 0] * rb - ra * nb[:, 0]) / det], axis=1)
+    T = P[:, :, 0] + np.einsum("cir,cr->ci", Nn, lam)
+    mt = np.min(np.minimum(T - t_min, t_max - T), axis=1)
+    tol = 1e-9 * (1.0 + np.max(np.abs(t_max)))
+    degenerate |= ~(np.abs(mt - nom) <= tol)
+
+    # active set at the worst wrench
+    alb = al[rows, kb]
+    sb = np.where(B[rows, kb] >= 0, 1.0, -1.0)
+    sigb = np.sign(alb) * sb[:, None]
+    live = np.abs(alb) > 1e-9 * S[rows, kb][:, None]
+    act_lo = np.zeros((c_, m), bool)
+    act_hi = np.zeros((c_, m), bool)
+    cb = sub[kb]
+    act_lo[rows[:, None], cb] = live & (sigb < 0)
+    act_hi[rows[:, None], cb] = live & (sigb > 0)
+    lim = cb[rows, np.argmax(np.abs(alb), axis=1)]
+    act_lo[single_b] = False
+    act_hi[single_b] = False
+    act_lo[single_b, hmin_i] = True
+    act_hi[single_b, hmin_i] = True
+    lim = np.where(single_b, hmin_i, lim)
+
+    status = np.where(ok, np.where(degenerate, _TENSIONS_BY_LP, _DONE), _BY_LP).astype(np.int8)
+    return T, box, nom, lim, act_lo, act_hi, status
+
+
+def _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk):
+    N, n, m = W.shape
+    out = _alloc(N, m)
+    for s in range(0, N, chunk):
+        e = min(N, s + chunk)
+        res = _numpy_block(W[s:e], Rhs[s:e], mid, h, t_min, t_max)
+        for arr, val in zip(out, res):
+            arr[s:e] = val
+    return out
+
+
+def _alloc(N, m):
+    return (np.empty((N, m)), np.empty(N), np.empty(N), np.empty(N, np.int64), np.zeros((N, m), bool),
+            np.zeros((N, m), bool), np.empty(N, np.int8))
+
+
+# --------------------------------------------------------------------------------------
+# the same test as a compiled kernel (numba): one pose at a time, no temporaries
+# --------------------------------------------------------------------------------------
+def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, status):  # pragma: no cover
+    """Reduced row echelon form with complete pivoting, then the candidate subsets.
+
+    Compiled by numba (the pure-Python body would be far too slow to use); the NumPy path
+    :func:`_numpy_block` computes the same quantities and the tests compare the two.
+    """
+    N, n, m = W.shape
+    nr = Rhs.shape[2]
+    r = m - n
+    hmin_i = 0
+    for i in range(m):
+        if h[i] < h[hmin_i]:
+            hmin_i = i
+    tmax_abs = 0.0
+    for i in range(m):
+        tmax_abs = max(tmax_abs, abs(t_max[i]))
+    tol_t = 1e-9 * (1.0 + tmax_abs)
+    A = np.empty((n, m + nr))
+    piv = np.empty(n, np.int64)
+    used = np.empty(m, np.bool_)
+    free = np.empty(max(r, 1), np.int64)
+    Nn = np.empty((m, max(r, 1)))
+    P = np.empty((m, nr))
+    cc = np.empty(m)
+    lam = np.empty(2)
+    for p in range(N):
+        for i in range(m):
+            act_lo[p, i] = False
+            act_hi[p, i] = False
+        scale = 0.0
+        for i in range(n):
+            for j in range(m):
+                A[i, j] = W[p, i, j]
+                scale = max(scale, abs(W[p, i, j]))
+            for g in range(nr):
+                A[i, m + g] = Rhs[p, i, g]
+        for j in range(m):
+            used[j] = False
+        ok = True
+        for row in range(n):
+            best = 0.0
+            bi = -1
+            bj = -1
+            for i in range(row, n):
+                for j in range(m):
+                    if not used[j]:
+                        v = abs(A[i, j])
+                        if v > best:
+                            best = v
+                            bi = i
+                            bj = j
+            if best <= 1e-10 * scale or bi < 0:
+                ok = False
+                break
+            if bi != row:
+                for j in range(m + nr):
+                    tmp = A[row, j]
+                    A[row, j] = A[bi, j]
+                    A[bi, j] = tmp
+            used[bj] = True
+            piv[row] = bj
+            inv = 1.0 / A[row, bj]
+            for j in range(m + nr):
+                A[row, j] *= inv
+            for i in range(n):
+                if i != row:
+                    f = A[i, bj]
+                    if f != 0.0:
+                        for j in range(m + nr):
+                            A[i, j] -= f * A[row, j]
+        if not ok:
+            status[p] = 2
+            box[p] = -np.inf
+            nom[p] = -np.inf
+            lim[p] = -1
+            for i in range(m):
+                T[p, i] = np.nan
+            continue
+        q = 0
+        for j in range(m):
+            if not used[j]:
+                free[q] = j
+                q += 1
+        for i in range(m):
+            for k in range(r):
+                Nn[i, k] = 0.0
+            for g in range(nr):
+                P[i, g] = 0.0
+        for k in range(r):
+            Nn[free[k], k] = 1.0
+        for row in range(n):
+            j = piv[row]
+            for k in range(r):
+                Nn[j, k] = -A[row, free[k]]
+            for g in range(nr):
+                P[j, g] = A[row, m + g]
+        for i in range(m):
+            cc[i] = P[i, 0] - mid[i]
+        st = 0
+        if r == 0:
+            bn = np.inf
+            bb = np.inf
+            ib = 0
+            for i in range(m):
+                vn = h[i] - abs(cc[i])
+                G = 0.0
+                for g in range(1, nr):
+                    G += abs(P[i, g])
+                if vn < bn:
+                    bn = vn
+                if vn - G < bb:
+                    bb = vn - G
+                    ib = i
+            for i in range(m):
+                T[p, i] = P[i, 0]
+            box[p] = bb
+            nom[p] = bn
+            lim[p] = ib
+            if cc[ib] < 0.0:
+                act_lo[p, ib] = True
+            else:
+                act_hi[p, ib] = True
+            status[p] = 0
+            continue
+        nsc = 0.0
+        for i in range(m):
+            s2 = 0.0
+            for k in range(r):
+                s2 += Nn[i, k] * Nn[i, k]
+            nsc = max(nsc, s2)
+        stol = 1e-12 * nsc
+        # candidates: (value, cables i, j, k, alphas, sign of B)
+        bn = h[hmin_i]
+        bb = h[hmin_i]
+        n_single = True
+        b_single = True
+        ni0 = nj0 = nk0 = 0
+        bi0 = bj0 = bk0 = 0
+        na_i = na_j = na_k = 0.0
+        ba_i = ba_j = ba_k = 0.0
+        n_sgn = 1.0
+        b_sgn = 1.0
+        n_S = 1.0
+        b_S = 1.0
+        if r == 1:
+            for i in range(m):
+                for j in range(i + 1, m):
+                    ai = Nn[j, 0]
+                    aj = -Nn[i, 0]
+                    S = abs(ai) + abs(aj)
+                    if S <= stol:
+                        continue
+                    Av = abs(ai) * h[i] + abs(aj) * h[j]
+                    B = ai * cc[i] + aj * cc[j]
+                    G = 0.0
+                    for g in range(1, nr):
+                        G += abs(ai * P[i, g] + aj * P[j, g])
+                    vn = (Av - abs(B)) / S
+                    vb = vn - G / S
+                    if vn < bn:
+                        bn = vn
+                        n_single = False
+                        ni0 = i
+                        nj0 = j
+                        na_i = ai
+                        na_j = aj
+                        n_sgn = 1.0 if B >= 0 else -1.0
+                        n_S = S
+                    if vb < bb:
+                        bb = vb
+                        b_single = False
+                        bi0 = i
+                        bj0 = j
+                        ba_i = ai
+                        ba_j = aj
+                        b_sgn = 1.0 if B >= 0 else -1.0
+                        b_S = S
+        else:
+            for i in range(m):
+                xi = Nn[i, 0]
+                yi = Nn[i, 1]
+                for j in range(i + 1, m):
+                    xj = Nn[j, 0]
+                    yj = Nn[j, 1]
+                    ak0 = xi * yj - yi * xj
+                    for k in range(j + 1, m):
+                        xk = Nn[k, 0]
+                        yk = Nn[k, 1]
+                        ai = xj * yk - yj * xk
+                        aj = xk * yi - yk * xi
+                        ak = ak0
+                        S = abs(ai) + abs(aj) + abs(ak)
+                        if S <= stol:
+                            continue
+                        Av = abs(ai) * h[i] + abs(aj) * h[j] + abs(ak) * h[k]
+                        B = ai * cc[i] + aj * cc[j] + ak * cc[k]
+                        G = 0.0
+                        for g in range(1, nr):
+                            G += abs(ai * P[i, g] + aj * P[j, g] + ak * P[k, g])
+                        vn = (Av - abs(B)) / S
+                        vb = vn - G / S
+                        if vn < bn:
+                            bn = vn
+                            n_single = False
+                            ni0 = i
+                            nj0 = j
+                            nk0 = k
+                            na_i = ai
+                            na_j = aj
+                            na_k = ak
+                            n_sgn = 1.0 if B >= 0 else -1.0
+                            n_S = S
+                        if vb < bb:
+                            bb = vb
+                            b_single = False
+                            bi0 = i
+                            bj0 = j
+                            bk0 = k
+                            ba_i = ai
+                            ba_j = aj
+                            ba_k = ak
+                            b_sgn = 1.0 if B >= 0 else -1.0
+                            b_S = S
+        box[p] = bb
+        nom[p] = bn
+        # tensions at the nominal optimum
+        if n_single:
+            st = 1
+        elif r == 1:
+            if abs(na_i) <= 1e-9 * n_S or abs(na_j) <= 1e-9 * n_S:
+                st = 1
+            else:
+                # the cable with the larger null-space component fixes lam
+                l0 = ni0 if abs(Nn[ni0, 0]) >= abs(Nn[nj0, 0]) else nj0
+                al0 = na_i if l0 == ni0 else na_j
+                sg = (1.0 if al0 > 0 else -1.0) * n_sgn
+                lam[0] = (sg * (h[l0] - bn) - cc[l0]) / Nn[l0, 0]
+        else:
+            amin = min(abs(na_i), min(abs(na_j), abs(na_k)))
+            if amin <= 1e-9 * n_S:
+                st = 1
+            else:
+                # solve with the two cables whose null-space rows are the least parallel
+                if abs(na_i) >= abs(na_j) and abs(na_i) >= abs(na_k):
+                    la = nj0
+                    lb = nk0
+                    sa = na_j
+                    sb = na_k
+                elif abs(na_j) >= abs(na_k):
+                    la = ni0
+                    lb = nk0
+                    sa = na_i
+                    sb = na_k
+                else:
+                    la = ni0
+                    lb = nj0
+                    sa = na_i
+                    sb = na_j
+                ga = (1.0 if sa > 0 else -1.0) * n_sgn
+                gb = (1.0 if sb > 0 else -1.0) * n_sgn
+                ra = ga * (h[la] - bn) - cc[la]
+                rb = gb * (h[lb] - bn) - cc[lb]
+                det = Nn[la, 0] * Nn[lb, 1] - Nn[la, 1] * Nn[lb, 0]
+                lam[0] = (ra * Nn[lb, 1] - Nn[la, 1] * rb) / det
+                lam[1] = (Nn[la, 0] * rb - ra * Nn[lb, 0]) / det
+        if st == 0:
+            mt = np.inf
+            for i in range(m):
+                t = P[i, 0]
+                for k in range(r):
+                    t += Nn[i, k] * lam[k]
+                T[p, i] = t
+                mt = min(mt, min(t - t_min[i], t_max[i] - t))
+            if not abs(mt - bn) <= tol_t:
+                st = 1
+        if st == 1:
+            for i in range(m):
+                T[p, i] = np.nan
+        status[p] = st
+        # active set at the worst wrench of the box
+        if b_single:
+            act_lo[p, hmin_i] = True
+            act_hi[p, hmin_i] = True
+            lim[p] = hmin_i
+        else:
+            best = -1.0
+            lbest = bi0
+            for q in range(r + 1):
+                if q == 0:
+                    l0 = bi0
+                    a0 = ba_i
+                elif q == 1:
+                    l0 = bj0
+                    a0 = ba_j
+                else:
+                    l0 = bk0
+                    a0 = ba_k
+                if abs(a0) > 1e-9 * b_S:
+                    if a0 * b_sgn < 0:
+                        act_lo[p, l0] = True
+                    else:
+                        act_hi[p, l0] = True
+                if abs(a0) > best:
+                    best = abs(a0)
+                    lbest = l0
+            lim[p] = lbest
+
+
+if _numba is not None:
+    _kernel = _numba.njit(cache=True, nogil=True)(_kernel_py)
+else:  # pragma: no cover
+    _kernel = None
+
+
+def _threads() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _run_numba(W, Rhs, mid, h, t_min, t_max, chunk):
+    """The compiled kernel over chunks, one thread per core (the kernel releases the GIL)."""
+    N, n, m = W.shape
+    out = _alloc(N, m)
+
+    def work(s):
+        e = min(N, s + chunk)
+        _kernel(np.ascontiguousarray(W[s:e]), np.ascontiguousarray(Rhs[s:e]), mid, h, t_min, t_max,
+                *(a[s:e] for a in out))
+
+    starts = range(0, N, chunk)
+    if len(starts) > 1 and _threads() > 1:
+        with ThreadPoolExecutor(max_workers=_threads()) as pool:
+            list(pool.map(work, starts))
+    else:
+        for s in starts:
+            work(s)
+    return out
+
+
+# --------------------------------------------------------------------------------------
+# the reference path and the public entry point
+# --------------------------------------------------------------------------------------
+def _lp_active(t, s, t_min, t_max):
+    """Active sets of LP tensions: cables within a small tolerance of the margin."""
+    tol = 1e-7 * (1.0 + np.max(np.abs(t_max)))
+    ok = np.isfinite(s)
+    lo = ok[:, None] & ((t - t_min) <= s[:, None] + tol)
+    hi = ok[:, None] & ((t_max - t) <= s[:, None] + tol)
+    return lo, hi
+
+
+def _by_lp(W, w, D, t_min, t_max):
+    """Per-pose LP for the nominal wrench and every box vertex (the exact fallback)."""
+    N, n, m = W.shape
+    res = solve_lp(W, w, t_min, t_max)
+    margin = res.margin.copy()
+    lo, hi = _lp_active(res.tensions, res.margin, t_min, t_max)
+    lim = res.limiting_cable.copy()
+    if len(D):
+        verts = box_vertices(w, np.abs(D).sum(axis=0))
+        for v in range(verts.shape[1]):
+            rv = solve_lp(W, verts[:, v], t_min, t_max)
+            worse = rv.margin < margin
+            if np.any(worse):
+                margin[worse] = rv.margin[worse]
+                vlo, vhi = _lp_active(rv.tensions[worse], rv.margin[worse], t_min, t_max)
+                lo[worse], hi[worse] = vlo, vhi
+                lim[worse] = rv.limiting_cable[worse]
+    return res.tensions, margin, res.margin, lim, lo, hi
+
+
+def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto",
+               chunk: int = CHUNK) -> TensionDetail:
+    """Max-margin tensions, exact feasibility and margin for N poses.
+
+    Parameters
+    ----------
+    W : (N, n, m) structure matrices (``W t + w_ext = 0``), m >= n.
+    w_ext : (N, n) or (n,) external wrench on the platform [N, N*m].
+    t_min, t_max : (m,) or scalar tension limits [N].
+    wrench_box : optional (n,) half-widths of an axis-aligned box of extra wrenches around
+        ``w_ext`` [N, N*m]; the margin is then the least over the whole box (its vertices).
+    backend : "auto" (compiled kernel when numba is installed, else NumPy), "numba",
+        "numpy", or "lp" (the per-pose scipy HiGHS reference, slow).
+    chunk : poses per NumPy chunk.
+
+    Returns
+    -------
+    TensionDetail
+        ``method`` names the distribution ("max-margin (centred)") and the path used.
+
+    Notes
+    -----
+    The classification is exact: see the module notes.  Poses the fast path cannot settle
+    (rank-deficient ``W``, redundancy above 2) are solved by :func:`cablekit.statics.solve_lp`.
+    """
+    if backend not in BACKENDS:
+        raise ValueError(f"backend must be one of {', '.join(BACKENDS)}, got {backend!r}")
+    if backend == "numba" and _kernel is None:
+        raise ValueError("backend 'numba' needs the numba package; use 'numpy' or 'auto'")
+    W = np.asarray(W, float)
+    if W.ndim == 2:
+        W = W[None]
+    if W.ndim != 3:
+        raise ValueError(f"W must have shape (N, n, m), got {W.shape}")
+    N, n, m = W.shape
+    if m < n:
+        raise ValueError(f"{m} cables cannot hold {n} degrees of freedom (need m >= n)")
+    w = np.broadcast_to(np.asarray(w_ext, float), (N, n))
+    t_min = np.broadcast_to(np.asarray(t_min, float), (m,)).copy()
+    t_max = np.broadcast_to(np.asarray(t_max, float), (m,)).copy()
+    for name, arr in (("W", W), ("w_ext", w), ("t_min", t_min), ("t_max", t_max)):
+        if not np.all(np.isfinite(arr)):
+            raise ValueError(f"{name} contains NaN or infinite values")
+    D = np.zeros((0, n)) if wrench_box is None else box_generators(wrench_box, n)
+    r = m - n
+    mid = 0.5 * (t_max + t_min)
+    h = 0.5 * (t_max - t_min)
+
+    if backend == "lp" or r > 2:
+        T, margin, nom, lim, lo, hi = _by_lp(W, w, D, t_min, t_max)
+        return TensionDetail(tensions=T, feasible=margin >= 0, margin=margin, limiting_cable=lim,
+                             method="max-margin (centred), per-pose linear program (scipy HiGHS)",
+                             nominal_margin=nom, active_lower=lo, active_upper=hi, by_lp=np.ones(N, bool))
+
+    Rhs = np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
+    use_numba = backend == "numba" or (backend == "auto" and _kernel is not None)
+    if r == 0 and not use_numba:
+        T, margin, nom, lim, lo, hi, status = _square_numpy(W, w, D, mid, h, t_min, t_max)
+        path = "unique solution (m = n)"
+    elif use_numba:
+        T, margin, nom, lim, lo, hi, status = _run_numba(W, Rhs, mid, h, t_min, t_max, chunk)
+        path = "unique solution (m = n), compiled" if r == 0 else f"exact null-space test (m - n = {r}), compiled"
+    else:
+        T, margin, nom, lim, lo, hi, status = _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk)
+        path = f"exact null-space test (m - n = {r}), NumPy"
+
+    # the exact fallback: LP for rank-deficient poses; LP tensions where the optimum is not a vertex
+    full = np.flatnonzero(status == _BY_LP)
+    if len(full):  # includes singular square W: no tensions or infinitely many
+        Tl, ml, nl, ll, lol, hil = _by_lp(W[full], w[full], D, t_min, t_max)
+        T[full], margin[full], nom[full], lim[full], lo[full], hi[full] = Tl, ml, nl, ll, lol, hil
+    part = np.flatnonzero(status == _TENSIONS_BY_LP)
+    if len(part):
+        T[part] = solve_lp(W[part], w[part], t_min, t_max).tensions
+    by_lp = status != _DONE
+    method = f"max-margin (centred) tensions; {path}"
+    if np.any(by_lp):
+        method += f"; {int(by_lp.sum())} pose(s) by linear program (scipy HiGHS)"
+    return TensionDetail(tensions=T, feasible=margin >= 0, margin=margin, limiting_cable=lim, method=method,
+                         nominal_margin=nom, active_lower=lo, active_upper=hi, by_lp=by_lp)
+
+
+def _square_numpy(W, w, D, mid, h, t_min, t_max):
+    """m = n in NumPy: :func:`~cablekit.statics.solve_square`, plus the box by linearity."""
+    N, n, m = W.shape
+    sq = solve_square(W, w, t_min, t_max)
+    T = sq.tensions
+    ok = np.all(np.isfinite(T), axis=1)
+    G = np.zeros((N, m))
+    if len(D) and np.any(ok):
+        G[ok] = np.abs(np.linalg.solve(W[ok], np.broadcast_to(D.T, (int(ok.sum()), n, len(D))))).sum(axis=2)
+    c = T - mid
+    slack = h - np.abs(c) - G
+    lim = np.where(ok, np.argmin(np.where(ok[:, None], slack, 0.0), axis=1), -1)
+    rows = np.arange(N)
+    margin = np.where(ok, slack[rows, np.maximum(lim, 0)], -np.inf)
+    lo = np.zeros((N, m), bool)
+    hi = np.zeros((N, m), bool)
+    li = np.maximum(lim, 0)
+    lo[rows, li] = ok & (c[rows, li] < 0)
+    hi[rows, li] = ok & (c[rows, li] >= 0)
+    status = np.where(ok, _DONE, _BY_LP).astype(np.int8)
+    return T, margin, sq.margin, lim, lo, hi, status
