@@ -75,6 +75,7 @@ __all__ = [
     "ArmReach",
     "reach",
     "design_checks",
+    "latex_equations",
     "SERVO_WARN_SHARE",
     "LEVEL_TOLERANCE",
 ]
@@ -225,7 +226,8 @@ class Arm:
         Used by :func:`cablekit.statics.external_wrench` for the design-level workspace; the
         tool-tip functions in :mod:`cablekit.tooltip` count the arm at its actual pose.
         """
-        return _lumped(self)
+        mass, centre = _lumped(self)
+        return mass, centre.copy()
 
 
 @lru_cache(maxsize=32)
@@ -277,24 +279,32 @@ def parse_arm_section(raw, add_problem, path: str, design) -> Arm | None:
     Every problem is reported through ``add_problem(path, value, expected)``; bad user data
     never raises.  Returns ``None`` when the section has problems.
 
-    Example (a hanging gripper arm)::
+    Example (one row of a hanging gripper arm; see examples/greenhouse_tray_3cable.toml)::
 
         [arm]
         mount = "0, 0, -0.04 m"
-        mount_orientation = "180, 0, 0 deg"   # z0 points down
-        tool = "0.11, 0, 0 m"                  # tip in the last frame
+        mount_orientation = "180, 0, 0 deg"   # base z axis points down
+        tool = "0, 0, 0 m"                     # tip in the last joint frame
 
         [[arm.joints]]
         name = "tilt"
-        type = "revolute"
+        type = "revolute"                      # or "prismatic"
         role = "wrist_tilt"                    # levelling, reach, wrist_roll or wrist_tilt
-        a = "0 m"; alpha = "0 deg"; d = "0 m"; theta = "90 deg"   # DH row (theta: offset)
-        lower = "-90 deg"; upper = "90 deg"; home = "0 deg"
-        mass = "0.04 kg"; center_of_mass = "-0.05, 0, 0 m"      # in frame {i}
-        rated_torque = "0.8 N*m"; stall_torque = "1.6 N*m"; speed = "60 rpm"
+        theta = "90 deg"                       # DH row; missing a, alpha, d, theta are 0
+        a = "110 mm"
+        lower = "-90 deg"
+        upper = "90 deg"                       # home defaults to 0 when inside the limits
+        mass = "0.04 kg"
+        center_of_mass = "-0.06, 0, 0 m"       # in this joint's frame; default link midpoint
+        rated_torque = "1.0 N*m"               # prismatic: rated_force, stall_force [N]
+        stall_torque = "2.2 N*m"
+        speed = "45 rpm"                       # prismatic: a speed such as "60 mm/s"
 
         [arm.gripper]
-        mass = "0.12 kg"; center_of_mass = "-0.03, 0, 0 m"; opening = "120 mm"; time = "0.6 s"
+        mass = "0.12 kg"
+        center_of_mass = "-0.03, 0, 0 m"       # in the last joint frame
+        opening = "120 mm"
+        time = "0.6 s"                         # to open or to close
     """
     c = _forwarding_collector(add_problem)
     if not isinstance(raw, Mapping):
@@ -380,10 +390,12 @@ def _parse_joint(c, t, p: str, k: int) -> Joint | None:
     alpha = c.quantity(t, "alpha", "angle", p, required=False, default=0.0)
     d = c.quantity(t, "d", "length", p, required=False, default=0.0)
     theta = c.quantity(t, "theta", "angle", p, required=False, default=0.0)
-    var_dim = "angle" if kind == "revolute" else "length"
-    lower = c.quantity(t, "lower", var_dim, p)
-    upper = c.quantity(t, "upper", var_dim, p)
-    home = c.quantity(t, "home", var_dim, p, required=False, default=None)
+    lower = upper = home = None
+    if kind is not None:  # the limits' unit depends on the type; a bad type is reported already
+        var_dim = "angle" if kind == "revolute" else "length"
+        lower = c.quantity(t, "lower", var_dim, p)
+        upper = c.quantity(t, "upper", var_dim, p)
+        home = c.quantity(t, "home", var_dim, p, required=False, default=None)
     mass = c.quantity(t, "mass", "mass", p, nonnegative=True)
     com = c.vector(t, "center_of_mass", "length", p, required=False, default=None)
     if kind == "revolute":
@@ -734,7 +746,8 @@ class ArmReach:
         """Highest ``|load|`` of each servo (n,) [N*m or N]."""
         return np.abs(self.loads).max(axis=0)
 
-    def _where(self, k: int) -> str:
+    def describe_sample(self, k: int) -> str:
+        """The joint values of sample ``k`` as text, e.g. ``lift 40.0 mm, tilt -90.0 deg``."""
         return ", ".join(f"{j.name} {j.display(v)}" for j, v in zip(self.arm.joints, self.joints[k]))
 
     def summary(self) -> list[str]:
@@ -758,7 +771,7 @@ class ArmReach:
                          f" {100 * self.peak_use[k]:5.0f} %")
         w = arm.joints[self.weakest]
         lines.append(f"  weakest servo: {w.name} at {100 * self.peak_use[self.weakest]:.0f} % of its rated "
-                     f"{'torque' if w.revolute else 'force'} ({self._where(self.weakest_sample)})")
+                     f"{'torque' if w.revolute else 'force'} ({self.describe_sample(self.weakest_sample)})")
         assumed = [j.name for j in arm.joints if j.com_assumed]
         if assumed:
             lines.append(f"  centre of mass assumed at the link midpoint for: {', '.join(assumed)}")
@@ -854,7 +867,7 @@ def design_checks(design, *, arm_reach: ArmReach | None = None) -> list[Check]:
                          value=peak, limit=j.rated, unit=j.load_unit, margin=margin, status=status,
                          source=f"servo rating from the design file; warn above {SERVO_WARN_SHARE:.0%} of rated: "
                                 "common practice, no source",
-                         detail=f"peak at {r._where(int(where))}; stall {j.stall:.3g} {j.load_unit}"))
+                         detail=f"peak at {r.describe_sample(int(where))}; stall {j.stall:.3g} {j.load_unit}"))
     if design.dof == 6:
         out.extend(_levelling_checks(design, arm))
     return out
@@ -885,3 +898,22 @@ def _levelling_checks(design, arm: Arm) -> list[Check]:
                                 f"pitch {ob[1]:.1f} deg")
     return [Check(key="arm_levelling", subject="arm levelling", title="levelling joints cancel the task's platform tilts",
                   value=value, limit=limit, unit="deg", margin=margin, status=status, source=source, detail=detail)]
+
+
+def latex_equations(kind: str) -> dict[str, str]:
+    """LaTeX of the arm's equations for notebooks and the review sheet (``kind`` is the
+    platform kind; the arm's equations do not depend on it)."""
+    th, d, a, al = sp.symbols(r"\theta_i d_i a_i \alpha_i", real=True)
+    return {
+        "DH link transform": r"A_i = R_z(\theta_i)\,T_z(d_i)\,T_x(a_i)\,R_x(\alpha_i) = "
+                             + sp.latex(dh_transform(th, d, a, al)),
+        "forward kinematics": r"T^0_n(\mathbf{q}) = A_1 A_2 \cdots A_n,\quad "
+                              r"\mathbf{p}_{tip} = T^0_n\,\mathbf{t}_{tool}",
+        "geometric Jacobian": r"J_v = \frac{\partial \mathbf{p}_{tip}}{\partial \mathbf{q}},\quad "
+                              r"J_{\omega,i} = \mathbf{z}_{i-1}\ \text{(revolute)},\ \mathbf{0}\ \text{(prismatic)}",
+        "static servo load": r"\boldsymbol{\tau} = \frac{\partial P}{\partial \mathbf{q}},\quad "
+                             r"P = -\sum_k m_k\,\mathbf{g}\cdot\mathbf{r}_k(\mathbf{q})",
+        "manipulability": r"w = \prod_i \sigma_i(J_v) = \sqrt{\det J_v J_v^T}",
+        "levelling": r"R^0_L(\mathbf{q}_L)^T R_m^T R_p^T \mathbf{e}_{up} = "
+                     r"R^0_L(\mathbf{q}_{L,home})^T R_m^T \mathbf{e}_{up}",
+    }

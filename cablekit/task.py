@@ -54,6 +54,7 @@ __all__ = [
     "TaskReport",
     "check_task",
     "write_plan",
+    "latex_equations",
 ]
 
 CAUTION = ("Static check only (no dynamics, no cable sag, arm links as centre lines). A suspended load can fall: "
@@ -144,24 +145,36 @@ def read_task(design, path_or_text, *, source: str | None = None) -> TaskTargets
 def segments_hit_boxes(p0, p1, lower, upper, *, clearance: float = 0.0, tol: float = 1e-9) -> np.ndarray:
     """Which segments ``p0 -> p1`` (..., 3) pass through which boxes (B, 3) (..., B) bool.
 
-    Slab method (Kay and Kajiya, "Ray tracing complex scenes", SIGGRAPH 1986): the segment
-    enters every slab before it leaves any.  Boxes grow by ``clearance`` [m]; a segment that
-    only touches a face (within ``tol``) does not count.
+    Boxes grow by ``clearance`` [m]; a segment that only touches a face (within ``tol``) does
+    not count, so a tool set down on a bench top is not a collision.  Uses
+    :func:`cablekit.workspace.segment_hits_box` when installed, else the same slab test here
+    (Kay and Kajiya, "Ray tracing complex scenes", SIGGRAPH 1986).
     """
-    p0 = np.asarray(p0, float)[..., None, :]
-    d = np.asarray(p1, float)[..., None, :] - p0
     lo = np.asarray(lower, float) - clearance + tol
     hi = np.asarray(upper, float) + clearance - tol
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t1 = (lo - p0) / d
-        t2 = (hi - p0) / d
-    flat = d == 0
-    inside = (p0 > lo) & (p0 < hi)
+    p0 = np.asarray(p0, float)[..., None, :]
+    p1 = np.asarray(p1, float)[..., None, :]
+    return _segment_hits_box()(p0, p1, lo, hi)
+
+
+def _segment_hits_box():
+    try:
+        from .workspace import segment_hits_box  # the shared helper of the workspace map
+    except ImportError:
+        return _slab_test
+    return segment_hits_box
+
+
+def _slab_test(p, q, lo, hi) -> np.ndarray:
+    """Segment ``p-q`` meets the closed box [lo, hi]: it enters every slab before leaving any."""
+    d = q - p
+    flat = np.abs(d) < 1e-15
+    dd = np.where(flat, 1.0, d)
+    t1, t2 = (lo - p) / dd, (hi - p) / dd
+    inside = (p >= lo) & (p <= hi)
     t_lo = np.where(flat, np.where(inside, -np.inf, np.inf), np.minimum(t1, t2))
     t_hi = np.where(flat, np.where(inside, np.inf, -np.inf), np.maximum(t1, t2))
-    enter = np.maximum(np.max(t_lo, axis=-1), 0.0)
-    leave = np.minimum(np.min(t_hi, axis=-1), 1.0)
-    return leave > enter
+    return np.maximum(np.max(t_lo, axis=-1), 0.0) <= np.minimum(np.min(t_hi, axis=-1), 1.0)
 
 
 def trapezoid_time(distance, speed: float, acceleration: float = 0.0):
@@ -491,7 +504,7 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
     return TaskReport(design=design, targets=targets, platform_poses=poses[last], joints=q[last], lengths=L[last],
                       counts=counts, tensions=ten.tensions[last], margin=ten.margin[last], servo_use=use[last],
                       steps=tuple(steps), sample_tips=tips, sample_platform=poses[:, :3],
-                      interference_method="segment vs box (cablekit.task.segments_hit_boxes)")
+                      interference_method=f"segment vs box ({_segment_hits_box().__module__})")
 
 
 def _tension_reason(res: TensionResult, n: int, lim, names) -> str:
@@ -561,3 +574,14 @@ def write_plan(report: TaskReport, path):
                + ("every step passes" if f is None else f"FIRST FAILING STEP {f.number} ({f.title}): {f.reason}")
                + f"\n{CAUTION}")
     return write_table(path, header, rows, comment=comment)
+
+
+def latex_equations(kind: str) -> dict[str, str]:
+    """LaTeX of the task check's move-time and encoder equations."""
+    return {
+        "move time (trapezoidal profile)": r"t = \frac{s}{v} + \frac{v}{a}\ \ (s \ge v^2/a),\qquad "
+                                           r"t = 2\sqrt{s/a}\ \ \text{otherwise}",
+        "top cable speed": r"v_{cable} = \min\left(\frac{\omega_{rated}}{i}\,\frac{D + d}{2},\ "
+                           r"u\,f_{count}\,\Delta L_{count}\right)",
+        "encoder counts": r"n_i = \operatorname{round}\left(\frac{L_i - L_{i,home}}{\Delta L_{count}}\right)",
+    }

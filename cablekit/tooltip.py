@@ -42,6 +42,7 @@ __all__ = [
     "tip_tensions",
     "TipWorkspace",
     "tip_workspace",
+    "latex_equations",
 ]
 
 
@@ -430,3 +431,17 @@ def tip_workspace(design, *, tips=None, step: float | None = None, wrist=None, j
     return TipWorkspace(tips=T, wrist=W, platform_poses=res.platform_poses.reshape(P, K, n),
                         reach_ok=res.ok.reshape(P, K), feasible=feasible.reshape(P, K),
                         margin=ten.margin.reshape(P, K), platform_only=plain, holding=holding)
+
+
+def latex_equations(kind: str) -> dict[str, str]:
+    """LaTeX of the platform-plus-arm equations (rigid platforms also carry the moment)."""
+    R = "R_p" if kind == "rigid" else ""
+    out = {
+        "tool tip": rf"\mathbf{{p}}_{{tip}} = \mathbf{{p}} + {R}\left(\mathbf{{m}} + R_m\,\mathbf{{t}}(\mathbf{{q}})\right)",
+        "pivoting about the tip": rf"\mathbf{{p}} = \mathbf{{p}}_{{tip}} - {R}\left(\mathbf{{m}} + R_m\,"
+                                  rf"\mathbf{{t}}(\mathbf{{q}})\right)",
+        "arm load on the platform": r"\mathbf{f} = \sum_k m_k\,\mathbf{g}",
+    }
+    if kind == "rigid":
+        out["offset moment"] = r"\mathbf{M} = \sum_k \mathbf{r}_k \times m_k\,\mathbf{g}"
+    return out

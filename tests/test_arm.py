@@ -466,3 +466,15 @@ def test_midpoint_centre_of_mass_is_assumed_and_said():
     assert arm.joints[0].com_assumed and arm.joints[0].center_of_mass == pytest.approx((0.0, 0.0, -0.1))
     text = "\n".join(reach(arm, max_samples=10).summary())
     assert re.search(r"assumed at the link midpoint for: slide", text)
+
+
+def test_equations_for_the_sheet_come_from_the_derivation():
+    import sympy as sp
+
+    from cablekit.arm import dh_transform, latex_equations
+    from cablekit.tooltip import latex_equations as tip_equations
+
+    th, d, a, al = sp.symbols(r"\theta_i d_i a_i \alpha_i", real=True)
+    eqs = latex_equations("point")
+    assert eqs["DH link transform"].endswith(sp.latex(dh_transform(th, d, a, al)))
+    assert "offset moment" in tip_equations("rigid") and "offset moment" not in tip_equations("point")
