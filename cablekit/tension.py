@@ -362,13 +362,18 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                     ib = i
             for i in range(m):
                 T[p, i] = P[i, 0]
+                G = 0.0
+                for g in range(1, nr):
+                    G += abs(P[i, g])
+                # unique tensions: every cable out of its range is a reason, plus the binding one
+                if i == ib or h[i] - abs(cc[i]) - G < 0.0:
+                    if cc[i] < 0.0:
+                        act_lo[p, i] = True
+                    else:
+                        act_hi[p, i] = True
             box[p] = bb
             nom[p] = bn
             lim[p] = ib
-            if cc[ib] < 0.0:
-                act_lo[p, ib] = True
-            else:
-                act_hi[p, ib] = True
             status[p] = 0
             continue
         nsc = 0.0
@@ -716,10 +721,9 @@ def _square_numpy(W, w, D, mid, h, t_min, t_max):
     lim = np.where(ok, np.argmin(np.where(ok[:, None], slack, 0.0), axis=1), -1)
     rows = np.arange(N)
     margin = np.where(ok, slack[rows, np.maximum(lim, 0)], -np.inf)
-    lo = np.zeros((N, m), bool)
-    hi = np.zeros((N, m), bool)
-    li = np.maximum(lim, 0)
-    lo[rows, li] = ok & (c[rows, li] < 0)
-    hi[rows, li] = ok & (c[rows, li] >= 0)
+    # unique tensions: every cable out of its range is a reason, plus the binding one
+    act = ok[:, None] & ((slack < 0) | (np.arange(m) == lim[:, None]))
+    lo = act & (c < 0)
+    hi = act & (c >= 0)
     status = np.where(ok, _DONE, _BY_LP).astype(np.int8)
     return T, margin, sq.margin, lim, lo, hi, status
