@@ -538,6 +538,8 @@ def _function(arm: Arm, what: str) -> GeneratedFunction:
                         doc="Static servo loads tau = dP/dq (gravity vector in the base frame, payload mass m_p).")
     if what == "level":
         L = len(arm.levelling)
+        if L == 0:
+            raise ValueError(f"the arm '{arm.name}' has no levelling joints")
         v = sp.symbols("v_x v_y v_z", real=True)
         e = ch.frames[L][:3, :3].T * sp.Matrix(v)
         de = e.jacobian(sp.Matrix(ch.q[:L]))
@@ -801,6 +803,7 @@ class ArmReach:
         fig.add_trace(go.Scatter3d(x=[m[0]], y=[m[1]], z=[m[2]], mode="markers", name="mount",
                                    marker=dict(size=6, color="#333333", symbol="square")))
         fig.update_layout(title=f"Reach of '{self.arm.name}' (platform frame, level)",
+                          legend=dict(orientation="h", yanchor="bottom", y=0.0, x=0.0),
                           scene=dict(xaxis_title="x [m]", yaxis_title="y [m]", zaxis_title="z [m]",
                                      aspectmode="data"),
                           margin=dict(l=0, r=0, t=40, b=0))

@@ -311,13 +311,9 @@ class TaskReport:
         fig.add_trace(go.Scatter3d(x=ex[:, 0], y=ex[:, 1], z=ex[:, 2], mode="markers+text", name="cable exits",
                                    text=d.cable_names, marker=dict(size=5, color="#333333", symbol="square")))
         for o in d.frame.obstacles:
-            lo, hi = np.array(o.lower), np.array(o.upper)
-            corners = np.array([[lo[0], lo[1], lo[2]], [hi[0], lo[1], lo[2]], [hi[0], hi[1], lo[2]],
-                                [lo[0], hi[1], lo[2]], [lo[0], lo[1], lo[2]], [lo[0], lo[1], hi[2]],
-                                [hi[0], lo[1], hi[2]], [hi[0], hi[1], hi[2]], [lo[0], hi[1], hi[2]],
-                                [lo[0], lo[1], hi[2]]])
-            fig.add_trace(go.Scatter3d(x=corners[:, 0], y=corners[:, 1], z=corners[:, 2], mode="lines",
-                                       name=o.name, line=dict(color="#8c564b")))
+            e = _box_edges(np.array(o.lower), np.array(o.upper))
+            fig.add_trace(go.Scatter3d(x=e[:, 0], y=e[:, 1], z=e[:, 2], mode="lines", name=o.name,
+                                       line=dict(color="#8c564b")))
         f = self.first_failure
         if f is not None:
             k = f.target
@@ -331,6 +327,14 @@ class TaskReport:
                           scene=dict(xaxis_title="x [m]", yaxis_title="y [m]", zaxis_title="z [m]",
                                      aspectmode="data"))
         return fig
+
+
+def _box_edges(lo, hi) -> np.ndarray:
+    """The 12 edges of a box as one polyline with NaN gaps (for a plotly line trace)."""
+    c = np.array([[hi[0] if i & 1 else lo[0], hi[1] if i & 2 else lo[1], hi[2] if i & 4 else lo[2]]
+                  for i in range(8)])
+    pairs = [(a, a | b) for a in range(8) for b in (1, 2, 4) if not a & b]
+    return np.concatenate([np.vstack([c[a], c[b], np.full(3, np.nan)]) for a, b in pairs])
 
 
 @dataclass
