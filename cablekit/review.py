@@ -923,6 +923,7 @@ thead th { background: #eef2f6; }
 table.checks td:nth-child(n+4):nth-child(-n+6) { white-space: nowrap; }
 table.checks td:nth-child(3) { width: 24%; }
 table.checks .source { font-size: 8pt; color: var(--muted); margin-top: 2pt; }
+table.practice .source { font-size: 8pt; }
 table.kv th { width: 38%; font-weight: normal; color: var(--muted); background: none; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .meta { color: var(--muted); font-size: 9pt; }
@@ -938,6 +939,7 @@ tr.fail td { background: #fbe9e7; } tr.warn td { background: #fff4e0; }
 .caution { border: 2px solid var(--fail); padding: 4pt 8pt; }
 .figure { margin: 6pt 0 10pt 0; break-inside: avoid; page-break-inside: avoid; }
 .figure .caption { font-size: 9pt; color: var(--muted); }
+.figure .title { font-weight: bold; font-size: 10pt; }
 .eq { margin: 4pt 0 8pt 0; break-inside: avoid; page-break-inside: avoid; }
 .eq .name { font-weight: bold; font-size: 9.5pt; }
 .eq .math { overflow-x: auto; padding: 2pt 0; }
@@ -948,7 +950,6 @@ math .bf { font-weight: bold; }
 pre { font-size: 8.5pt; background: #f5f7f9; padding: 4pt; white-space: pre-wrap; }
 .sign td { height: 26pt; }
 .modebar, .modebar-container { display: none !important; }
-.print-copy { display: none; }
 footer { margin-top: 16pt; border-top: 1px solid var(--rule); padding-top: 4pt; }
 @page { size: A4; margin: 12mm 10mm; }
 @media print {
@@ -957,38 +958,38 @@ footer { margin-top: 16pt; border-top: 1px solid var(--rule); padding-top: 4pt; 
   tr { break-inside: avoid; page-break-inside: avoid; }
   .eq .math { overflow: visible; }
   .sign { break-inside: avoid; page-break-inside: avoid; }
-  .has-print-copy { display: none !important; }
-  .print-copy { display: block; }
 }
 """
 
-# WebGL plots (3-D scatter, surfaces, scattergl) print blank.  When the page is opened for
-# printing (address ending in #print, as render_pdf does), each gets a PNG copy
-# (Plotly.toImage) shown only in print; body[data-print-ready] says when they are done.  A
-# person printing from a browser's menu can add #print to the address first.
-_PRINT_SCRIPT = """
+# Every plot is stored as plotly JSON beside its <div> and drawn by this one script.  WebGL
+# plots (3-D scatter, surfaces, scattergl) print blank, so when the page is opened for
+# printing (address ending in #print, as render_pdf does) they are drawn as PNG images
+# (Plotly.toImage) instead.  body[data-plots] becomes "ready" (or "failed") when every plot
+# is drawn, for a printer or a test to wait on.
+_PLOT_SCRIPT = """
 (function () {
   var GL = /(3d|gl)$|^(surface|cone|streamtube|volume|isosurface|splom|parcoords)$/;
-  function usesWebGL(gd) {
-    return (gd.data || []).some(function (t) { return GL.test(t.type || ""); });
-  }
-  window.addEventListener("load", function () {
-    if (location.hash !== "#print") { return; }
-    var jobs = [];
-    document.querySelectorAll(".plotly-graph-div").forEach(function (gd) {
-      if (!usesWebGL(gd)) { return; }
-      var w = (gd.layout && gd.layout.width) || 640, h = (gd.layout && gd.layout.height) || 420;
-      jobs.push(Plotly.toImage(gd, {format: "png", width: w, height: h, scale: 2}).then(function (url) {
-        var img = document.createElement("img");
-        img.src = url; img.className = "print-copy"; img.alt = "printable copy of the plot above";
-        img.style.width = w + "px";
-        gd.classList.add("has-print-copy");
-        gd.parentNode.insertBefore(img, gd.nextSibling);
-      }));
-    });
-    Promise.all(jobs).then(function () { document.body.setAttribute("data-print-ready", "yes"); },
-                           function (err) { document.body.setAttribute("data-print-ready", "failed"); throw err; });
+  var printing = location.hash === "#print";
+  var config = {displayModeBar: false, responsive: false};
+  var jobs = [];
+  document.querySelectorAll("div.plot").forEach(function (div) {
+    var fig = JSON.parse(document.getElementById(div.id + "-data").textContent);
+    var layout = fig.layout || {};
+    var webgl = (fig.data || []).some(function (t) { return GL.test(t.type || "scatter"); });
+    if (printing && webgl) {
+      jobs.push(Plotly.toImage({data: fig.data, layout: layout, config: config},
+                               {format: "png", width: layout.width, height: layout.height, scale: 2})
+        .then(function (url) {
+          var img = document.createElement("img");
+          img.src = url; img.alt = "the plot, drawn as an image for printing"; img.style.width = layout.width + "px";
+          div.appendChild(img);
+        }));
+    } else {
+      jobs.push(Plotly.newPlot(div, fig.data, layout, config));
+    }
   });
+  Promise.all(jobs).then(function () { document.body.setAttribute("data-plots", "ready"); },
+                         function (err) { document.body.setAttribute("data-plots", "failed"); throw err; });
 })();
 """
 
@@ -1000,17 +1001,26 @@ def _badge(status: str) -> str:
     return f'<span class="status {status}">{_STATUS_TEXT.get(status, status.upper())}</span>'
 
 
-def _figure_html(fig, div_id: str) -> str:
+def _figure_html(fig, div_id: str) -> tuple[str, str]:
+    """A plot's ``<div>`` with its plotly JSON (drawn by :data:`_PLOT_SCRIPT`), and its title,
+    moved out of the plot so that a long title wraps in the page instead of being cut."""
     import plotly.graph_objects as go
     import plotly.io as pio
 
     fig = go.Figure(fig)  # a copy: never change the caller's figure
+    title = fig.layout.title.text or ""
+    if title:
+        fig.update_layout(title_text="")
+        if fig.layout.margin.t is None or fig.layout.margin.t > 40:
+            fig.update_layout(margin_t=40)
     width = fig.layout.width
     fig.update_layout(width=min(int(width), _FIG_WIDTH) if width else _FIG_WIDTH)
     if not fig.layout.height:
         fig.update_layout(height=420)
-    return pio.to_html(fig, include_plotlyjs=False, full_html=False, div_id=div_id, validate=False,
-                       config={"displayModeBar": False, "responsive": False, "staticPlot": False})
+    spec = pio.to_json(fig, validate=False).replace("</", "<\\/")  # never end the <script> early
+    div = (f'<div id="{div_id}" class="plot" style="width:{fig.layout.width}px; height:{fig.layout.height}px">'
+           f'</div>\n<script type="application/json" id="{div_id}-data">{spec}</script>')
+    return div, title
 
 
 def _render(design, *, parts, checks, status, missing, digest, date, source_path) -> str:
@@ -1027,7 +1037,7 @@ def _render(design, *, parts, checks, status, missing, digest, date, source_path
     body.append(_section("checks", "4. Checks", _render_checks(checks, parts)))
     body.append(_section("plots", "5. Plots and module results", _render_parts(parts)))
     body.append(_section("equations", "6. Equations used", _render_equations(design, parts)))
-    body.append(_section("practice", "7. Common-practice values in force", _render_practice(design)))
+    body.append(_section("practice", "7. Common-practice values in force", _render_practice(design, checks)))
     body.append(_section("assumptions", "8. Assumptions and what was not checked", _render_assumptions(design, parts)))
     body.append(_section("safety", "9. Safety", _render_cautions()))
     body.append(_section("signoff", "10. Sign-off", _render_signoff(digest, date)))
@@ -1037,7 +1047,7 @@ def _render(design, *, parts, checks, status, missing, digest, date, source_path
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             f"<title>{_h(title)}</title>\n<meta name=\"generator\" content=\"cablekit {_h(__version__)}\">\n"
             f"<style>{_CSS}</style>\n<script>{get_plotlyjs()}</script>\n</head>\n<body>\n"
-            + "\n".join(body) + f"\n<script>{_PRINT_SCRIPT}</script>\n</body>\n</html>\n")
+            + "\n".join(body) + f"\n<script>{_PLOT_SCRIPT}</script>\n</body>\n</html>\n")
 
 
 def _section(anchor: str, title: str, content: str) -> str:
@@ -1236,7 +1246,9 @@ def _render_parts(parts) -> str:
         if p.summary:
             out.append('<pre class="summary">' + _h("\n".join(p.summary)) + "</pre>")
         for k, (caption, fig) in enumerate(p.figures, start=1):
-            out.append(f'<div class="figure">{_figure_html(fig, f"fig-{p.key}-{k}")}'
+            plot, title = _figure_html(fig, f"fig-{p.key}-{k}")
+            head = f'<div class="title">{_h(title)}</div>' if title else ""
+            out.append(f'<div class="figure">{head}{plot}'
                        f'<div class="caption">Figure {p.key}-{k}: {_h(caption)}</div></div>')
         if p.not_checked:
             out.append('<p class="notchecked">Not covered here: ' + _h(" ".join(p.not_checked)) + "</p>")
@@ -1255,21 +1267,64 @@ def _render_equations(design, parts) -> str:
     for title, eqs in groups:
         out.append(f"<h3>{_h(title)}</h3>")
         for name, latex in eqs:
+            shown = _typeset_part(latex)
             try:
-                math_html = latex_to_mathml(latex)
+                math_html = latex_to_mathml(shown) if shown else '<span class="meta">(too long to typeset: ' \
+                                                                 "see the LaTeX source)</span>"
             except LatexError as exc:
                 math_html = f'<span class="meta">(shown as LaTeX: {_h(exc)})</span>'
-            cls = "eq long" if len(latex) > 240 else "eq"
+            cls = "eq long" if len(shown or "") > 240 else "eq"
             out.append(f'<div class="{cls}"><div class="name">{_h(name)}</div><div class="math">{math_html}</div>'
                        f"<code>{_h(latex)}</code></div>")
     return "\n".join(out)
+
+
+_COMMAND = re.compile(r"\\([A-Za-z]+)")
+_LONG_EQUATION = 900  # characters of LaTeX beyond which a typeset equation no longer fits an A4 line
+
+
+def _split_top_level(latex: str, sep: str = "=") -> list[str]:
+    """Split ``latex`` at ``sep`` outside braces and ``\\left..\\right`` pairs."""
+    parts, depth, start, k = [], 0, 0, 0
+    while k < len(latex):
+        command = _COMMAND.match(latex, k)
+        if command:
+            depth += {"left": 1, "begin": 1, "right": -1, "end": -1}.get(command.group(1), 0)
+            k = command.end()
+            continue
+        if latex[k] == "\\":
+            k += 2  # an escaped character such as \{ or \,
+            continue
+        if latex[k] == "{":
+            depth += 1
+        elif latex[k] == "}":
+            depth -= 1
+        elif latex[k] == sep and depth == 0:
+            parts.append(latex[start:k])
+            start = k + 1
+        k += 1
+    parts.append(latex[start:])
+    return parts
+
+
+def _typeset_part(latex: str) -> str | None:
+    """What to typeset of an equation: all of it, or for a very long one its short left part
+    (``L_i = ||l_i|| = <expanded>`` -> ``L_i = ||l_i|| = (expanded...)``); ``None`` when even
+    that is too long.  The full LaTeX is always printed under the equation."""
+    if len(latex) <= _LONG_EQUATION:
+        return latex
+    parts = _split_top_level(latex)
+    head = "=".join(parts[:-1]).strip()
+    if len(parts) >= 2 and head and len(head) <= _LONG_EQUATION:
+        return head + r" = \text{(expanded: see the LaTeX source below)}"
+    return None
 
 
 # -- practice -------------------------------------------------------------------------------------
 _PRACTICE_UNITS = {"angle": "deg", "length": "mm", "dimensionless": ""}
 
 
-def _render_practice(design) -> str:
+def _render_practice(design, checks) -> str:
     from .practice import PRACTICE, practice_value
     from .units import to_unit
 
@@ -1280,11 +1335,15 @@ def _render_practice(design) -> str:
         shown = to_unit(val, unit) if unit else val
         default = to_unit(e.value, unit) if unit else e.value
         over = key in design.practice
+        cited = sorted({c.title for c in checks if e.source in c.source})
         rows.append([f"<code>{_h(key)}</code>", _h(e.label), f"<b>{_num(shown)}</b> {_h(unit)}",
-                     (f"design file (default {_num(default)})" if over else "default"), _h(e.source)])
-    return ("<p>The one table of common-practice defaults, with the value in force for this design. A design file "
-            "overrides an entry in its <code>[practice]</code> table; local codes win over every default here.</p>"
-            + _table(["key", "what", "value in force", "from", "source"], rows))
+                     (f"design file (default {_num(default)})" if over else "default"),
+                     _h("; ".join(cited)) if cited else ("(the design file's value)" if over else "–"),
+                     f'<span class="source">{_h(e.source)}</span>'])
+    return ("<p>The one table of common-practice defaults, with the value in force for this design and the checks "
+            "whose stated source cites the entry. A design file overrides an entry in its <code>[practice]</code> "
+            "table; local codes win over every default here.</p>"
+            + _table(["key", "what", "value in force", "from", "cited by the checks", "source"], rows, cls="practice"))
 
 
 # -- assumptions, cautions, sign-off ----------------------------------------------------------------
