@@ -173,7 +173,7 @@ def test_wrench_box_margin_is_the_least_vertex_margin_lp():
     # running every vertex through scipy's linprog (HiGHS) as a separate problem.
     d = load_design(EXAMPLES / "hall_sander_8cable.toml")
     rng = np.random.default_rng(21)
-    q = random_poses(d, 400, rng, grow=0.0, tilt_deg=8.0)
+    q = random_poses(d, 400, rng, grow=0.3, tilt_deg=12.0)
     half = np.array([10.0, 10.0, 10.0, 1.0, 1.0, 1.0])
     fast = margins(d, q, box=half)
     # keep a few poses on each side of the verdict
