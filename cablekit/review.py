@@ -48,6 +48,7 @@ __all__ = [
     "write_review",
     "render_pdf",
     "find_browser",
+    "check_line",
     "RendererError",
     "LatexError",
     "latex_to_mathml",
@@ -442,7 +443,7 @@ def _num(v: float) -> str:
     except (TypeError, ValueError):
         return html.escape(str(v))
     if math.isnan(v):
-        return "NaN"
+        return "n/a"  # not computed (e.g. a fleet angle without the drum distance)
     if math.isinf(v):
         return "∞" if v > 0 else "−∞"
     a = abs(v)
@@ -1085,6 +1086,14 @@ def _render_header(design, *, checks, status, missing, digest, date, source_path
     return (f"<header>\n<h1>Design review: {_h(design.meta.name)}</h1>\n"
             f'<p class="meta">A design-review sheet written by cablekit. Check it, then sign it in section 10.</p>\n'
             + "\n".join(lines) + "\n" + info + "\n</header>")
+
+
+def check_line(c: Check) -> str:
+    """One plain-text line for a check: status, title, subject, value against limit, reason."""
+    u = f" {_unit(c.unit)}" if _unit(c.unit) else ""
+    line = (f"{c.status.upper()} {c.title} ({c.subject}): {_num(c.value)}{u} against the limit {_num(c.limit)}{u}"
+            + (f" - {c.detail}" if c.detail else ""))
+    return line.replace("−", "-")  # plain ASCII minus for terminals and scripts
 
 
 def _check_sentence(c: Check, k: int) -> str:

@@ -486,7 +486,7 @@ def test_cli_exit_4_on_a_failing_design_and_the_sheet_is_written(tmp_path, capsy
     out = tmp_path / "review.html"
     assert main(["review", str(GREENHOUSE), "-o", str(out), "-q"]) == EXIT_CHECK_FAILED
     assert 'data-status="fail"' in out.read_text(encoding="utf-8")
-    assert "FAIL fake failing check (task region)" in capsys.readouterr().out
+    assert "FAIL fake failing check (task region): 3.5 N against the limit 2 N - cable post C" in capsys.readouterr().out
 
 
 def test_cli_missing_design_gives_exit_3_and_no_sheet(tmp_path, capsys):

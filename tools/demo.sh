@@ -27,6 +27,12 @@ if command -v chromium >/dev/null 2>&1 || command -v chromium-browser >/dev/null
 fi
 status=0
 .venv/bin/cablekit review "$DEMO" -o out/review.html "${PDF_ARGS[@]}" || status=$?
+if [ "$status" = 3 ] && [ ${#PDF_ARGS[@]} -gt 0 ]; then
+  echo "demo: printing the PDF failed; writing the HTML sheet only" >&2
+  PDF_ARGS=()
+  status=0
+  .venv/bin/cablekit review "$DEMO" -o out/review.html || status=$?
+fi
 case "$status" in
   0) verdict="every check passes" ;;
   4) verdict="the design FAILS at least one check: the sheet lists what fails and why" ;;

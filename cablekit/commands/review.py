@@ -38,7 +38,7 @@ def _check_date(text: str | None) -> str | None:
 
 
 def run(args) -> int:
-    from ..review import RendererError, find_browser, write_review
+    from ..review import RendererError, check_line, find_browser, write_review
 
     date = _check_date(args.date)
     out = Path(args.output)
@@ -66,8 +66,7 @@ def run(args) -> int:
     print(f"wrote {out}" + (f" and {args.pdf}" if args.pdf else ""))
     print(f"{design.meta.name}: {n} checks, {n - len(fails) - len(warns)} pass, {len(warns)} warn, {len(fails)} fail")
     for c in fails:
-        print(f"  FAIL {c.title} ({c.subject}): {c.value:.4g} {c.unit} vs limit {c.limit:.4g} {c.unit}"
-              + (f" - {c.detail}" if c.detail else ""))
+        print(f"  {check_line(c)}")
     if sheet.missing:
         print("  not checked (module not installed): " + ", ".join(sheet.missing))
     return EXIT_CHECK_FAILED if fails else EXIT_OK
