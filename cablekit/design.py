@@ -1083,6 +1083,15 @@ def atomic_write_bytes(path, data: bytes) -> Path:
     folder = path.parent if str(path.parent) else Path(".")
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     try:
+        # mkstemp creates the file private (0600); give it the mode a normal open() would
+        # (or keep the mode of the file being replaced)
+        try:
+            mode = path.stat().st_mode & 0o7777
+        except FileNotFoundError:
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        os.chmod(tmp, mode)
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()

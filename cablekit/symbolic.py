@@ -184,6 +184,7 @@ def structure_matrix_expr(kind: str, m: int) -> sp.Matrix:
     return sp.Matrix.hstack(*cols)
 
 
+@lru_cache(maxsize=None)
 def latex_equations(kind: str) -> dict[str, str]:
     """LaTeX of the main equations for notebooks and the review sheet."""
     t = cable_template(kind)
@@ -193,7 +194,7 @@ def latex_equations(kind: str) -> dict[str, str]:
         "length": r"L_i = \lVert \mathbf{l}_i \rVert = " + sp.latex(t.length),
         "unit vector": r"\mathbf{u}_i = \mathbf{l}_i / L_i",
         "equilibrium": r"W\,\mathbf{t} + \mathbf{w}_{ext} = 0,\quad t_{min} \le t_i \le t_{max}",
-        "length jacobian": r"\frac{\partial L_i}{\partial \mathbf{q}} = " + sp.latex(sp.simplify(t.jac_pose[:, :3]))
+        "length jacobian": r"\frac{\partial L_i}{\partial \mathbf{q}} = " + sp.latex(t.jac_pose[:, :3])
         + (r" \;(\text{translation part})" if kind == "rigid" else ""),
     }
     out["encoder counts"] = r"c_i = " + sp.latex(encoder_template().counts)

@@ -189,3 +189,15 @@ def test_temporary_file_lives_beside_the_target(tmp_path, monkeypatch):
     monkeypatch.setattr(D.os, "replace", spy)
     D.atomic_write_text(tmp_path / "x.toml", "a = 1\n")
     assert seen["src"].parent == tmp_path  # same folder: rename is atomic on one file system
+
+
+def test_saved_files_get_normal_permissions(greenhouse, tmp_path):
+    # mkstemp makes private files; a saved design must be readable like any other file
+    target = tmp_path / "perm.toml"
+    save_design(greenhouse, target)
+    umask = os.umask(0)
+    os.umask(umask)
+    assert target.stat().st_mode & 0o777 == 0o666 & ~umask
+    target.chmod(0o640)
+    save_design(greenhouse, target)
+    assert target.stat().st_mode & 0o777 == 0o640  # an existing file keeps its mode
