@@ -2,10 +2,11 @@
 
 One run, the same poses for both, on two demo rigs:
 
-* the 8-cable rigid rig (m - n = 2): 10^4 random poses in its task box with tilts up to
-  10 degrees; the LP solves every one of them, cablekit all of them at once;
-* the 3-cable suspended rig (m = n): 10^6 random positions in its task box for cablekit; the
-  LP solves the first ``--lp-poses`` of them (a per-pose rate does not depend on how many).
+* the 8-cable rigid rig (m - n = 2): 10^4 random poses in its task box grown by a quarter of
+  its size on every side, tilted up to 15 degrees about each axis; the LP solves every one of
+  them, cablekit all of them at once;
+* the 3-cable suspended rig (m = n): 10^6 random positions in its grown task box for cablekit;
+  the LP solves the first ``--lp-poses`` of them (a per-pose rate does not depend on how many).
 
 Prints poses per second of each, the ratio, and the classification mismatches (must be 0),
 and writes the table to benchmarks/results_tension.txt.  Both sides get the same structure
@@ -46,15 +47,17 @@ def _best(fn, repeats):
     return best, out
 
 
-def _poses(d, N, rng, tilt_deg):
+def _poses(d, N, rng, tilt_deg, grow=0.25):
+    """Uniform poses in the task box grown by ``grow`` of its size on every side (both verdicts occur)."""
     lo, hi = np.array(d.task.box_lower), np.array(d.task.box_upper)
+    lo, hi = lo - grow * (hi - lo), hi + grow * (hi - lo)
     p = lo + (hi - lo) * rng.random((N, 3))
     if d.dof == 3:
         return p
     return np.hstack([p, np.radians(tilt_deg) * (2 * rng.random((N, 3)) - 1)])
 
 
-def bench(name, path, n_fast, n_lp, repeats, rng, tilt_deg=10.0):
+def bench(name, path, n_fast, n_lp, repeats, rng, tilt_deg=15.0):
     d = load_design(path)
     lim = tension_limits(d)
     q = _poses(d, n_fast, rng, tilt_deg)

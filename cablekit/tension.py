@@ -77,7 +77,7 @@ except ImportError:  # pragma: no cover - exercised on machines without numba
 
 HAVE_NUMBA = _numba is not None
 BACKENDS = ("auto", "numba", "numpy", "lp")
-CHUNK = 4096  # poses per NumPy chunk (keeps temporaries in cache)
+CHUNK = 1024  # poses per chunk (keeps the NumPy temporaries in cache)
 
 # per-pose status of the fast path
 _DONE, _TENSIONS_BY_LP, _BY_LP = 0, 1, 2
@@ -136,13 +136,15 @@ def _subsets(m: int, r: int) -> np.ndarray:
     return np.array(list(combinations(range(m), r + 1)), dtype=np.int64).reshape(-1, r + 1)
 
 
-def _alphas(nn: np.ndarray, r: int) -> np.ndarray:
-    """Dependency coefficients on each candidate subset: nn (..., r+1, r) -> (..., r+1)."""
+def _alphas(Nn: np.ndarray, sub: np.ndarray, r: int) -> list[np.ndarray]:
+    """Dependency coefficients on each candidate subset: Nn (c, m, r), sub (K, r+1) -> r+1 arrays (c, K)."""
     if r == 1:
-        return np.stack([nn[..., 1, 0], -nn[..., 0, 0]], axis=-1)
-    n0, n1, n2 = nn[..., 0, :], nn[..., 1, :], nn[..., 2, :]
-    cross = lambda a, b: a[..., 0] * b[..., 1] - a[..., 1] * b[..., 0]  # noqa: E731
-    return np.stack([cross(n1, n2), cross(n2, n0), cross(n0, n1)], axis=-1)
+        x = Nn[:, :, 0]
+        return [x[:, sub[:, 1]], -x[:, sub[:, 0]]]
+    x, y = Nn[:, :, 0], Nn[:, :, 1]
+    X = x[:, :, None] * y[:, None, :] - y[:, :, None] * x[:, None, :]  # 2-D cross products of all pairs
+    i, j, k = sub.T
+    return [X[:, j, k], X[:, k, i], X[:, i, j]]
 
 
 def _numpy_block(W, Rhs, mid, h, t_min, t_max):
@@ -161,16 +163,16 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
     cc = P[:, :, 0] - mid
 
     sub = _subsets(m, r)  # (K, r+1)
-    al = _alphas(Nn[:, sub, :], r)  # (c, K, r+1)
-    aa = np.abs(al)
-    S = aa.sum(axis=2)
-    A = (aa * h[sub]).sum(axis=2)
-    B = (al * cc[:, sub]).sum(axis=2)
-    G = np.abs(np.einsum("ckj,ckjg->ckg", al, P[:, sub, 1:])).sum(axis=2) if P.shape[2] > 1 else 0.0
+    cols = _alphas(Nn, sub, r)
+    aa = [np.abs(a) for a in cols]
+    S = sum(aa)
+    A = sum(a * h[sub[:, q]] for q, a in enumerate(aa))
+    B = sum(a * cc[:, sub[:, q]] for q, a in enumerate(cols))
+    G = sum(np.abs(sum(a * P[:, sub[:, q], g] for q, a in enumerate(cols))) for g in range(1, P.shape[2]))
     good = S > 1e-12 * np.max(np.sum(Nn * Nn, axis=2), axis=1)[:, None]
     Ssafe = np.where(good, S, 1.0)
     vn = np.where(good, (A - np.abs(B)) / Ssafe, np.inf)
-    vb = np.where(good, vn - G / Ssafe, np.inf)
+    vb = vn - G / Ssafe if P.shape[2] > 1 else vn
     hmin_i = int(np.argmin(h))
     rows = np.arange(c_)
     kn = np.argmin(vn, axis=1)
@@ -181,7 +183,7 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
     single_b = h[hmin_i] <= vb[rows, kb]
 
     # tensions at the nominal optimum: the active constraints of the binding subset
-    aln = al[rows, kn]  # (c, r+1)
+    aln = np.stack([a[rows, kn] for a in cols], axis=1)  # (c, r+1)
     sn = np.where(B[rows, kn] >= 0, 1.0, -1.0)
     Sn = S[rows, kn]
     degenerate = single_n | np.any(np.abs(aln) <= 1e-9 * Sn[:, None], axis=1)
@@ -208,7 +210,7 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
     degenerate |= ~(np.abs(mt - nom) <= tol)
 
     # active set at the worst wrench
-    alb = al[rows, kb]
+    alb = np.stack([a[rows, kb] for a in cols], axis=1)
     sb = np.where(B[rows, kb] >= 0, 1.0, -1.0)
     sigb = np.sign(alb) * sb[:, None]
     live = np.abs(alb) > 1e-9 * S[rows, kb][:, None]
@@ -560,10 +562,63 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
             lim[p] = lbest
 
 
+def _square3_py(W, w, mid, h, T, box, nom, lim, act_lo, act_hi, status):  # pragma: no cover
+    """m = n = 3 without a wrench box: Cramer's rule per pose (compiled by numba).
+
+    The same unique tensions as :func:`~cablekit.statics.solve_square`; the tests compare them.
+    """
+    N = W.shape[0]
+    for p in range(N):
+        a00, a01, a02 = W[p, 0, 0], W[p, 0, 1], W[p, 0, 2]
+        a10, a11, a12 = W[p, 1, 0], W[p, 1, 1], W[p, 1, 2]
+        a20, a21, a22 = W[p, 2, 0], W[p, 2, 1], W[p, 2, 2]
+        c0 = a11 * a22 - a12 * a21
+        c1 = a12 * a20 - a10 * a22
+        c2 = a10 * a21 - a11 * a20
+        det = a00 * c0 + a01 * c1 + a02 * c2
+        n0 = a00 * a00 + a01 * a01 + a02 * a02
+        n1 = a10 * a10 + a11 * a11 + a12 * a12
+        n2 = a20 * a20 + a21 * a21 + a22 * a22
+        for i in range(3):
+            act_lo[p, i] = False
+            act_hi[p, i] = False
+        if not abs(det) > 1e-12 * np.sqrt(n0 * n1 * n2):
+            status[p] = 2
+            box[p] = -np.inf
+            nom[p] = -np.inf
+            lim[p] = -1
+            for i in range(3):
+                T[p, i] = np.nan
+            continue
+        b0, b1, b2 = -w[p, 0], -w[p, 1], -w[p, 2]
+        inv = 1.0 / det
+        T[p, 0] = (b0 * c0 + b1 * (a02 * a21 - a01 * a22) + b2 * (a01 * a12 - a02 * a11)) * inv
+        T[p, 1] = (b0 * c1 + b1 * (a00 * a22 - a02 * a20) + b2 * (a02 * a10 - a00 * a12)) * inv
+        T[p, 2] = (b0 * c2 + b1 * (a01 * a20 - a00 * a21) + b2 * (a00 * a11 - a01 * a10)) * inv
+        best = np.inf
+        ib = 0
+        for i in range(3):
+            v = h[i] - abs(T[p, i] - mid[i])
+            if v < best:
+                best = v
+                ib = i
+        for i in range(3):
+            if i == ib or h[i] - abs(T[p, i] - mid[i]) < 0.0:
+                if T[p, i] < mid[i]:
+                    act_lo[p, i] = True
+                else:
+                    act_hi[p, i] = True
+        box[p] = best
+        nom[p] = best
+        lim[p] = ib
+        status[p] = 0
+
+
 if _numba is not None:
     _kernel = _numba.njit(cache=True, nogil=True)(_kernel_py)
+    _square3 = _numba.njit(cache=True, nogil=True)(_square3_py)
 else:  # pragma: no cover
-    _kernel = None
+    _kernel = _square3 = None
 
 
 def _threads() -> int:
@@ -571,6 +626,16 @@ def _threads() -> int:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # pragma: no cover - not on Linux
         return max(1, os.cpu_count() or 1)
+
+
+def _in_threads(work, N, chunk):
+    starts = range(0, N, chunk)
+    if len(starts) > 1 and _threads() > 1:
+        with ThreadPoolExecutor(max_workers=_threads()) as pool:
+            list(pool.map(work, starts))
+    else:
+        for s in starts:
+            work(s)
 
 
 def _run_numba(W, Rhs, mid, h, t_min, t_max, chunk):
@@ -583,13 +648,20 @@ def _run_numba(W, Rhs, mid, h, t_min, t_max, chunk):
         _kernel(np.ascontiguousarray(W[s:e]), np.ascontiguousarray(Rhs[s:e]), mid, h, t_min, t_max,
                 *(a[s:e] for a in out))
 
-    starts = range(0, N, chunk)
-    if len(starts) > 1 and _threads() > 1:
-        with ThreadPoolExecutor(max_workers=_threads()) as pool:
-            list(pool.map(work, starts))
-    else:
-        for s in starts:
-            work(s)
+    _in_threads(work, N, chunk)
+    return out
+
+
+def _run_square3(W, w, mid, h, chunk):
+    N = W.shape[0]
+    out = _alloc(N, 3)
+    chunk = 16 * chunk  # a few flops per pose: bigger chunks, less thread overhead
+
+    def work(s):
+        e = min(N, s + chunk)
+        _square3(np.ascontiguousarray(W[s:e]), np.ascontiguousarray(w[s:e]), mid, h, *(a[s:e] for a in out))
+
+    _in_threads(work, N, chunk)
     return out
 
 
@@ -679,9 +751,13 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
                              method="max-margin (centred), per-pose linear program (scipy HiGHS)",
                              nominal_margin=nom, active_lower=lo, active_upper=hi, by_lp=np.ones(N, bool))
 
-    Rhs = np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
     use_numba = backend == "numba" or (backend == "auto" and _kernel is not None)
-    if r == 0 and not use_numba:
+    Rhs = None if (r == 0 and (len(D) == 0 or not use_numba)) else \
+        np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
+    if r == 0 and n == 3 and len(D) == 0 and use_numba:
+        T, margin, nom, lim, lo, hi, status = _run_square3(W, w, mid, h, chunk)
+        path = "unique solution (m = n), compiled"
+    elif r == 0 and not use_numba:
         T, margin, nom, lim, lo, hi, status = _square_numpy(W, w, D, mid, h, t_min, t_max)
         path = "unique solution (m = n)"
     elif use_numba:
