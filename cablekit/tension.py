@@ -36,12 +36,13 @@ vertices are (the feasible wrench set is convex); its margin is the least vertex
 ``sum_k |sum_i alpha_i p_ik|`` to ``|sum alpha_i c_i|`` (``p_k`` a particular solution for
 ``d_k``), so the box costs one extra sum per candidate instead of ``2^k`` solves.
 
-Paths: m = n reuses :func:`cablekit.statics.solve_square` (unique tensions); r = 1 and 2 use
-the candidate formula above, in a compiled kernel when numba is installed and in NumPy
-otherwise (both tested against each other and against scipy's LP); larger redundancy, rank-
-deficient poses, and the rare pose whose optimal tensions are not a unique vertex go to the
-per-pose HiGHS linear program (:func:`cablekit.statics.solve_lp`), so the classification
-is always exact.
+Paths: m = n has unique tensions: :func:`cablekit.statics.solve_square` in NumPy, Cramer's rule
+compiled for three cables, the same row reduction as below for a wrench box.  r = 1 and 2 use
+the candidate formula above, in a compiled kernel (row reduction with complete pivoting, then
+the candidates) when numba is installed and in NumPy (QR null space) otherwise; the tests hold
+every path to the others and to scipy's LP.  Larger redundancy, rank-deficient poses, and the
+rare pose whose optimal tensions are not a unique vertex go to the per-pose HiGHS linear
+program (:func:`cablekit.statics.solve_lp`), so the classification is always exact.
 
 References
 ----------
@@ -710,7 +711,7 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
         ``w_ext`` [N, N*m]; the margin is then the least over the whole box (its vertices).
     backend : "auto" (compiled kernel when numba is installed, else NumPy), "numba",
         "numpy", or "lp" (the per-pose scipy HiGHS reference, slow).
-    chunk : poses per NumPy chunk.
+    chunk : poses per chunk (NumPy temporaries; one compiled call per chunk and thread).
 
     Returns
     -------
@@ -748,7 +749,7 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
     if backend == "lp" or r > 2:
         T, margin, nom, lim, lo, hi = _by_lp(W, w, D, t_min, t_max)
         return TensionDetail(tensions=T, feasible=margin >= 0, margin=margin, limiting_cable=lim,
-                             method="max-margin (centred), per-pose linear program (scipy HiGHS)",
+                             method="max-margin (centred) tensions; per-pose linear program (scipy HiGHS)",
                              nominal_margin=nom, active_lower=lo, active_upper=hi, by_lp=np.ones(N, bool))
 
     use_numba = backend == "numba" or (backend == "auto" and _kernel is not None)

@@ -597,6 +597,7 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     tensions = np.empty((N, m))
     methods, lp_poses = set(), 0
     motor = np.array([x == "motor" for x in lim.limited_by])
+    loaded = bool(np.any(box > 0) or np.any(extra != 0))  # else the static map is the same map
     if progress is not None:
         progress(0, N)
     for s in range(0, N, CHUNK):
@@ -604,7 +605,6 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         q = q_all[s:e]
         W = structure_matrix(design, q)
         w_g = external_wrench(design, q)
-        loaded = np.any(box > 0) or np.any(extra != 0)
         res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=box if np.any(box > 0) else None,
                          backend=backend)
         stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend) if loaded else res

@@ -297,3 +297,24 @@ def test_command_empty_task_region_exits_3(tmp_path, capsys):
     bad.write_text(text[:start] + body + "\n" + text[end:])
     assert main(["workspace", str(bad)]) == 3
     assert "task" in capsys.readouterr().err
+
+
+def test_three_redundant_cables_map_through_the_exact_lp():
+    # six cables on a point platform (m - n = 3) have no fast path: every pose goes to scipy's
+    # HiGHS; the map says so, and its tensions balance gravity and reach the reported margin
+    text = (EXAMPLES / "workshop_camera_4cable.toml").read_text()
+    extra = "".join(f'\n[[frame.exits]]\nname = "{n}"\nposition = "{x}, {y}, 3.0 m"\npulley_diameter = "60 mm"\n'
+                    f'drum_distance = "1.5 m"\n' for n, x, y in (("N", 2.0, 3.0), ("S", 2.0, 0.0)))
+    i = text.index("[[frame.obstacles]]")
+    from cablekit.design import loads_design
+
+    d6 = loads_design(text[:i] + extra.lstrip("\n") + "\n" + text[i:])
+    assert d6.m == 6
+    pts = np.array([(2.0, 1.5, 1.8), (1.0, 1.0, 2.5), (3.9, 2.9, 0.5)])
+    ws6 = compute_workspace(at_points(d6, pts))
+    assert "linear program" in ws6.method and ws6.lp_poses == 3
+    assert ws6.feasible[0] and not ws6.feasible[2]
+    W, w = structure_matrix(d6, pts), external_wrench(d6, pts)
+    assert np.allclose(np.einsum("nij,nj->ni", W, ws6.tensions) + w, 0, atol=1e-6)
+    own = np.min(np.minimum(ws6.tensions - ws6.t_min, ws6.t_max - ws6.tensions), axis=1)
+    assert np.allclose(own, ws6.margin, atol=1e-6)
