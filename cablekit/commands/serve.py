@@ -1,0 +1,199 @@
+"""``cablekit serve [NOTEBOOK] [--port N] [--design FILE]``: open a notebook as a dashboard.
+
+Starts Voila on 127.0.0.1 (this machine only) with the notebook's sources hidden, prints the
+address, and stops Voila and its kernels cleanly on Ctrl-C (or SIGTERM).  Serving to other
+machines is an explicit choice (``--ip``) and then always needs a token: give one with
+``--token`` or one is generated and printed.  The token is handed to Voila in a private
+configuration file, not on its command line.
+
+``--design FILE`` serves a copy of the notebook whose parameters cell names that design file
+(the original notebook is not touched); without it the dashboard opens the bundled demo, and a
+``?design=NAME`` query parameter picks another bundled demo by name.
+"""
+
+from __future__ import annotations
+
+import ipaddress
+import json
+import os
+import secrets
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+from ..cli import InputError
+
+NAME = "serve"
+HELP = "open a cablekit notebook as a dashboard in the browser (Voila)"
+DESCRIPTION = (
+    "Serve a notebook from notebooks/ as a dashboard (sources hidden) on 127.0.0.1. "
+    "NOTEBOOK is a path or a name such as 'explore_layout', 'accuracy_study', 'arm_and_task' "
+    "or 'review'. Ctrl-C stops the server."
+)
+
+DEFAULT_NOTEBOOK = "explore_layout"
+DEFAULT_PORT = 8866
+START_TIMEOUT = 60.0  # [s] for Voila to open its port
+
+
+def add_arguments(p) -> None:
+    p.add_argument("notebook", nargs="?", default=DEFAULT_NOTEBOOK, metavar="NOTEBOOK",
+                   help=f"notebook path or name in notebooks/ (default: {DEFAULT_NOTEBOOK})")
+    p.add_argument("--port", type=int, default=DEFAULT_PORT,
+                   help=f"TCP port (default {DEFAULT_PORT}; 0 picks a free one)")
+    p.add_argument("--design", metavar="DESIGN.toml", help="design file the dashboard opens (default: a demo)")
+    p.add_argument("--ip", default="127.0.0.1",
+                   help="address to listen on (default 127.0.0.1, this machine only); any other address "
+                        "serves to the network and requires a token")
+    p.add_argument("--token", help="access token the browser must present (generated when serving beyond "
+                                   "this machine without one)")
+
+
+def _notebook_folders() -> list[Path]:
+    here = Path(__file__).resolve().parents[2] / "notebooks"
+    return [Path.cwd() / "notebooks", here]
+
+
+def find_notebook(name: str) -> Path:
+    """A notebook path, or a name looked up in ``./notebooks`` and the package's notebooks/."""
+    path = Path(name)
+    if path.suffix == ".ipynb" or path.parent != Path("."):
+        if not path.is_file():
+            raise InputError(f"notebook {name!r} not found")
+        return path.resolve()
+    for folder in _notebook_folders():
+        candidate = folder / f"{name}.ipynb"
+        if candidate.is_file():
+            return candidate.resolve()
+    names = sorted({p.stem for folder in _notebook_folders() if folder.is_dir() for p in folder.glob("*.ipynb")})
+    raise InputError(f"no notebook named {name!r}; choose one of: {', '.join(names) or '(none found)'}")
+
+
+def _is_loopback(ip: str) -> bool:
+    if ip == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(ip).is_loopback
+    except ValueError:
+        raise InputError(f"--ip: {ip!r} is not an IP address") from None
+
+
+def _free_port(ip: str, port: int) -> int:
+    """Check that ``port`` can be bound on ``ip`` (or pick one for 0) and return it."""
+    family = socket.AF_INET6 if ":" in ip else socket.AF_INET
+    with socket.socket(family, socket.SOCK_STREAM) as s:
+        try:
+            s.bind((ip, port))
+        except OSError as exc:
+            raise InputError(f"port {port} on {ip} is not available ({exc.strerror}); choose another with --port") from None
+        return s.getsockname()[1]
+
+
+def _wait_for_port(proc: subprocess.Popen, ip: str, port: int, timeout: float) -> bool:
+    host = "127.0.0.1" if ip in ("0.0.0.0", "localhost") else ("::1" if ip == "::" else ip)
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        if proc.poll() is not None:
+            return False
+        try:
+            with socket.create_connection((host, port), timeout=0.5):
+                return True
+        except OSError:
+            time.sleep(0.2)
+    return False
+
+
+def parameterised_copy(notebook: Path, folder: Path, values: dict) -> Path:
+    """Copy ``notebook`` into ``folder`` with its cell tagged ``parameters`` set to ``values``.
+
+    Values are written as Python literals with :func:`repr` (strings only), never evaluated.
+    """
+    import nbformat
+
+    nb = nbformat.read(notebook, as_version=4)
+    cells = [c for c in nb.cells if "parameters" in c.get("metadata", {}).get("tags", [])]
+    if not cells:
+        raise InputError(f"{notebook.name} has no cell tagged 'parameters', so --design cannot be passed to it")
+    cells[0].source = "".join(f"{k} = {str(v)!r}\n" for k, v in values.items())
+    out = folder / notebook.name
+    nbformat.write(nb, out)
+    return out
+
+
+class _Stop(Exception):
+    pass
+
+
+def _raise_stop(signum, frame):
+    raise _Stop()
+
+
+def run(args) -> int:
+    notebook = find_notebook(args.notebook)
+    if not _is_loopback(args.ip) and not args.token:
+        args.token = secrets.token_urlsafe(24)
+    port = _free_port(args.ip, args.port)
+    workdir = Path(tempfile.mkdtemp(prefix="cablekit-serve-"))
+    try:
+        if args.design:
+            design = Path(args.design).resolve()
+            from ..design import load_design
+
+            load_design(design)  # a broken file: the validation list now, not a broken dashboard
+            notebook = parameterised_copy(notebook, workdir, {"DESIGN": design, "DESIGN_FOLDER": design.parent})
+        config = {"Voila": {"ip": args.ip, "port": port, "port_retries": 0, "open_browser": False},
+                  "VoilaConfiguration": {"strip_sources": True, "show_tracebacks": False}}
+        if args.token:
+            config["Voila"]["token"] = args.token
+        cfg = workdir / "voila.json"
+        fd = os.open(cfg, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        with os.fdopen(fd, "w") as fh:
+            json.dump(config, fh)
+        cmd = [sys.executable, "-m", "voila", str(notebook), f"--Voila.config_file_paths={[str(workdir)]!r}"]
+        # its own session: a Ctrl-C in the terminal reaches only us, and we stop Voila in order
+        proc = subprocess.Popen(cmd, cwd=str(notebook.parent), start_new_session=True)
+        previous = signal.signal(signal.SIGTERM, _raise_stop)
+        try:
+            if not _wait_for_port(proc, args.ip, port, START_TIMEOUT):
+                code = proc.poll()
+                print(f"cablekit serve: Voila did not start ({'exit code %s' % code if code is not None else 'timed out'}); "
+                      "see its messages above", file=sys.stderr)
+                return 3
+            shown = "127.0.0.1" if args.ip in ("0.0.0.0", "localhost") else args.ip
+            url = f"http://{shown}:{port}/" + (f"?token={args.token}" if args.token else "")
+            print(f"cablekit dashboard: {url}", flush=True)
+            print(f"  notebook {notebook.name}, sources hidden; "
+                  + ("reachable from this machine only" if _is_loopback(args.ip)
+                     else f"listening on {args.ip}: anyone on the network with the token can use it")
+                  + "; press Ctrl-C to stop", flush=True)
+            proc.wait()
+            print(f"cablekit serve: Voila exited with code {proc.returncode}", file=sys.stderr)
+            return 3 if proc.returncode else 0
+        except (KeyboardInterrupt, _Stop):
+            print("cablekit serve: stopping", flush=True)
+            return 0
+        finally:
+            signal.signal(signal.SIGTERM, previous)
+            _stop(proc)
+    finally:
+        shutil.rmtree(workdir, ignore_errors=True)
+
+
+def _stop(proc: subprocess.Popen) -> None:
+    """SIGTERM Voila (it shuts its kernels down), then SIGKILL its process group if it hangs."""
+    if proc.poll() is not None:
+        return
+    proc.terminate()
+    try:
+        proc.wait(timeout=15)
+    except subprocess.TimeoutExpired:
+        try:
+            os.killpg(proc.pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
+        proc.wait(timeout=5)
