@@ -318,3 +318,19 @@ def test_three_redundant_cables_map_through_the_exact_lp():
     assert np.allclose(np.einsum("nij,nj->ni", W, ws6.tensions) + w, 0, atol=1e-6)
     own = np.min(np.minimum(ws6.tensions - ws6.t_min, ws6.t_max - ws6.tensions), axis=1)
     assert np.allclose(own, ws6.margin, atol=1e-6)
+
+
+@pytest.mark.parametrize("demo", DEMOS)
+def test_map_without_numba_is_the_same_map(demo, monkeypatch):
+    # numba is optional at import: with the compiled kernels removed, "auto" takes the NumPy path
+    # and the map must not change
+    from cablekit import tension
+
+    d = load_design(EXAMPLES / demo)
+    compiled = compute_workspace(d, step=0.25)
+    monkeypatch.setattr(tension, "_kernel", None)
+    monkeypatch.setattr(tension, "_square3", None)
+    plain = compute_workspace(d, step=0.25)
+    assert "compiled" not in plain.method
+    assert np.array_equal(plain.reasons, compiled.reasons)
+    assert np.allclose(plain.margin, compiled.margin, atol=1e-8)
