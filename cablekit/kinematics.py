@@ -315,17 +315,22 @@ def _levenberg_marquardt(design, L, q, a, b, tol, max_iter):
         done = (better & small) | (cost[idx] < 1e-28) | (lam[idx] > 1e12)
         active[idx[done]] = False
     residual = np.sqrt(cost / L.shape[1])
-    return q, residual, it
+    return q, residual, ~active | (cost < 1e-28), it
 
 
 def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=None, tol: float = 1e-12,
-                       max_iter: int = 50) -> FKResult:
+                       max_iter: int = 50, consistency_tol: float | None = None) -> FKResult:
     """Poses that produce the given cable lengths.
 
     A point platform on exactly three cables uses closed-form trilateration (the hanging
     solution).  Otherwise Levenberg-Marquardt on the symbolic length Jacobian (least squares
     for m > n), vectorised over poses, starting from ``guess`` (default: the home pose);
     rigid-platform poses stuck in a local minimum are restarted from a few orientation seeds.
+
+    ``consistency_tol`` [m]: RMS length residual below which a pose counts as converged
+    (default ``1e-9 * max(1, L_max)`` for m = n and ``1e-6 * max(1, L_max)`` for m > n).
+    Measured or perturbed lengths of a redundant rig are never exactly consistent: pass the
+    expected length error, so that only real local minima are restarted.
 
     Raises
     ------
@@ -346,9 +351,12 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
         return FKResult(poses=p, residual=res, converged=res < 1e-6, iterations=0)
     N = L.shape[0]
     q0 = np.broadcast_to(np.asarray(design.home_pose if guess is None else guess, float), (N, n)).copy()
-    q, residual, it = _levenberg_marquardt(design, L, q0, a, b, tol, max_iter)
-    scale_len = np.max(L, axis=1)
-    good = 1e-9 * np.maximum(1.0, scale_len)
+    q, residual, stationary, it = _levenberg_marquardt(design, L, q0, a, b, tol, max_iter)
+    scale_len = np.maximum(1.0, np.max(L, axis=1))
+    if consistency_tol is not None:
+        good = np.full(N, float(consistency_tol))
+    else:
+        good = (1e-9 if m == n else 1e-6) * scale_len
     if n == 6:
         # Rare local minima of the orientation: restart the failures from a few seeds
         for seed in _ORIENTATION_SEEDS:
@@ -359,12 +367,10 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
             start[:, 3:] = seed
             ai = a[bad] if a.ndim == 3 else a
             bi = b[bad] if b.ndim == 3 else b
-            qs, rs, _ = _levenberg_marquardt(design, L[bad], start, ai, bi, tol, max_iter)
+            qs, rs, st, _ = _levenberg_marquardt(design, L[bad], start, ai, bi, tol, max_iter)
             better = rs < residual[bad]
             q[bad[better]] = qs[better]
             residual[bad[better]] = rs[better]
-    converged = residual < good
-    if m > n:
-        # over-determined: measured lengths are rarely consistent to 1e-9; report, do not hide
-        converged = residual < 1e-6 * np.maximum(1.0, scale_len)
+            stationary[bad[better]] = st[better]
+    converged = stationary & (residual <= good)
     return FKResult(poses=q, residual=residual, converged=converged, iterations=it)
