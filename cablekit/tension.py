@@ -412,10 +412,9 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                     G = 0.0
                     for g in range(1, nr):
                         G += abs(ai * P[i, g] + aj * P[j, g])
-                    vn = (Av - abs(B)) / S
-                    vb = vn - G / S
-                    if vn < bn:
-                        bn = vn
+                    num = Av - abs(B)  # compare before dividing: no division for most candidates
+                    if num < bn * S:
+                        bn = num / S
                         n_single = False
                         ni0 = i
                         nj0 = j
@@ -423,8 +422,8 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                         na_j = aj
                         n_sgn = 1.0 if B >= 0 else -1.0
                         n_S = S
-                    if vb < bb:
-                        bb = vb
+                    if num - G < bb * S:
+                        bb = (num - G) / S
                         b_single = False
                         bi0 = i
                         bj0 = j
@@ -454,10 +453,9 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                         G = 0.0
                         for g in range(1, nr):
                             G += abs(ai * P[i, g] + aj * P[j, g] + ak * P[k, g])
-                        vn = (Av - abs(B)) / S
-                        vb = vn - G / S
-                        if vn < bn:
-                            bn = vn
+                        num = Av - abs(B)  # compare before dividing: no division for most candidates
+                        if num < bn * S:
+                            bn = num / S
                             n_single = False
                             ni0 = i
                             nj0 = j
@@ -467,8 +465,8 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                             na_k = ak
                             n_sgn = 1.0 if B >= 0 else -1.0
                             n_S = S
-                        if vb < bb:
-                            bb = vb
+                        if num - G < bb * S:
+                            bb = (num - G) / S
                             b_single = False
                             bi0 = i
                             bj0 = j

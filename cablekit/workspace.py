@@ -218,7 +218,7 @@ def _geometry(design, q, pairs):
 # --------------------------------------------------------------------------------------
 # the result
 # --------------------------------------------------------------------------------------
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # arrays inside: compare fields explicitly
 class WorkspaceResult:
     """Per-pose verdicts over the task region (SI units; see the module notes for fields)."""
 
