@@ -8,7 +8,6 @@ by :func:`cablekit.tooltip.arm_world_polyline`.
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass
 
 import ipywidgets as W
@@ -18,7 +17,7 @@ from .base import NotAvailable, Panel
 from .figure import PlotFigure, show_figure
 from .results import arm_reach_result, need
 from .state import DesignState
-from .style import FRAME, MUTED, PLATFORM, TASK, figure_layout
+from .style import FRAME, PLATFORM, TASK, figure_layout, summary_block
 
 __all__ = ["ArmReachView", "ArmSnapshot"]
 
@@ -112,5 +111,4 @@ class ArmReachView(Panel):
             f"pivot: over a full wrist turn the platform moves within {span:.1f} mm while the tip stays within "
             f"{err:.1e} m of its target; " + ("every pose reachable (joints within limits, platform inside the frame)"
                                               if ok else "some poses are NOT reachable (joint limits or frame)")]
-        self.summary.value = (f"<div style='color:{MUTED};font-size:12px;white-space:pre-wrap;font-family:monospace'>"
-                              + html.escape("\n".join(lines)) + "</div>")
+        self.summary.value = summary_block(lines)

@@ -127,10 +127,10 @@ class Dashboard(W.VBox):
         column = []
         for name, panel in self.panels.items():
             column += [W.HTML(f"<h3 style='margin:10px 0 4px 0;color:{INK}'>{html.escape(titles[name])}</h3>"), panel]
-        right = W.VBox(column, layout=W.Layout(flex="1 1 auto", min_width="520px"))
+        right = W.VBox(column, layout=W.Layout(flex="1 1 0%", min_width="0", overflow="hidden"))
         if self.editor is not None:
             self.editor.layout = W.Layout(flex="0 0 460px", margin="0 12px 0 0")
-            body = W.HBox([self.editor, right], layout=W.Layout(align_items="flex-start", flex_flow="row wrap"))
+            body = W.HBox([self.editor, right], layout=W.Layout(align_items="flex-start", width="100%"))
             top = [self.header]
         else:
             body = right

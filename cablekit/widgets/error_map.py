@@ -10,7 +10,6 @@ The bars show each source's share of the mean-square position error (median over
 
 from __future__ import annotations
 
-import html
 from dataclasses import replace
 
 import ipywidgets as W
@@ -20,7 +19,7 @@ from .base import Panel, optional_module
 from .figure import PlotFigure
 from .results import accuracy_result, need
 from .state import DesignState
-from .style import ERROR_SCALE, INK, MUTED, figure_layout
+from .style import ERROR_SCALE, INK, figure_layout, summary_block
 
 __all__ = ["ErrorMap", "single_source_budget", "SOURCE_FIELDS"]
 
@@ -117,5 +116,4 @@ class ErrorMap(Panel):
             self.map_fig.layout.title.text = title
         with self.share_fig.batch_update():
             self.share_fig.data[0].update(x=share, y=list(full.source_labels))
-        self.summary.value = (f"<div style='color:{MUTED};font-size:12px;white-space:pre-wrap;font-family:monospace'>"
-                              + html.escape("\n".join(shown.summary())) + "</div>")
+        self.summary.value = summary_block(shown.summary())

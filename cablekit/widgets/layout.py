@@ -9,6 +9,7 @@ focus, so typing never triggers a computation.
 
 from __future__ import annotations
 
+import math
 from functools import partial
 
 import ipywidgets as W
@@ -29,6 +30,17 @@ def _slider(description: str, value: float, *, lo: float, hi: float, step: float
                       readout_format=".2f", style=_LABEL, layout=_WIDE)
     s.add_class("ck-slider")
     return s
+
+
+def _show(widget, value: float) -> None:
+    """Show ``value`` unless the widget already shows it (to rounding noise).
+
+    Echoing a value that differs only by rounding would be sent to the page and could
+    overwrite a newer value the user is still stepping to with the keyboard.
+    """
+    value = float(f"{value:.10g}")  # 2.0000000000000004 mm is shown as 2
+    if not math.isclose(widget.value, value, rel_tol=1e-9, abs_tol=1e-12):
+        widget.value = value
 
 
 def _number(description: str, value: float) -> W.FloatText:
@@ -156,7 +168,7 @@ class LayoutEditor(W.VBox):
         for row, e in zip(rows, d.frame.exits):
             row.children[0].value = f"{e.name}"
             for box, v in zip(row.children[1:4], e.position):
-                box.value = round(v, 6)
+                _show(box, v)
 
     def _sync(self, change=None) -> None:
         """Show the state's design in every control without sending edits back."""
@@ -167,32 +179,28 @@ class LayoutEditor(W.VBox):
             for slider, v in ((self.width, w), (self.depth, dep), (self.height, h)):
                 if v > slider.max:
                     slider.max = 3 * v
-                slider.value = v
+                _show(slider, v)
             self.width.disabled = w <= 0
             self.depth.disabled = dep <= 0
             if d.m > self.winch_count.max:
                 self.winch_count.max = d.m
             self.winch_count.value = d.m
             self.winch_count.disabled = d.platform.kind != "point"
-            self.winch_count.description_tooltip = ("re-lays the exits on a regular polygon" if d.platform.kind == "point"
-                                                    else "a rigid platform needs one attachment per cable: edit the file")
+            self.winch_count.tooltip = ("re-lays the exits on a regular polygon" if d.platform.kind == "point"
+                                        else "a rigid platform needs one attachment per cable: edit the file")
             self._exit_table()
-            self.platform_mass.value = d.platform.mass
-            self.payload_mass.value = d.payload.mass
-            self.rope_diameter.value = round(d.cable.diameter * 1e3, 9)
-            self.rope_mbf.value = round(d.cable.breaking_force / 1e3, 9)
-            self.rope_ea.value = round(d.cable.axial_stiffness / 1e3, 9)
-            self.rope_tmin.value = d.cable.min_tension
             w0 = d.winches[0]
-            self.drum_diameter.value = round(w0.drum_diameter * 1e3, 9)
-            self.gear_ratio.value = w0.gear_ratio
-            self.efficiency.value = w0.efficiency
-            self.rated_torque.value = w0.motor_rated_torque
-            self.peak_torque.value = w0.motor_peak_torque
+            for box, v in ((self.platform_mass, d.platform.mass), (self.payload_mass, d.payload.mass),
+                           (self.rope_diameter, d.cable.diameter * 1e3), (self.rope_mbf, d.cable.breaking_force / 1e3),
+                           (self.rope_ea, d.cable.axial_stiffness / 1e3), (self.rope_tmin, d.cable.min_tension),
+                           (self.drum_diameter, w0.drum_diameter * 1e3), (self.gear_ratio, w0.gear_ratio),
+                           (self.efficiency, w0.efficiency), (self.rated_torque, w0.motor_rated_torque),
+                           (self.peak_torque, w0.motor_peak_torque)):
+                _show(box, v)
             has_box = d.task.box_lower is not None
             for boxes, corner in ((self.task_lower, d.task.box_lower), (self.task_upper, d.task.box_upper)):
                 for b, v in zip(boxes, corner or (0.0, 0.0, 0.0)):
-                    b.value = round(v, 6)
+                    _show(b, v)
                     b.disabled = not has_box
         finally:
             self._syncing = False

@@ -187,8 +187,8 @@ class RigView(Panel):
             self.fig.data[4].update(**_xyz(task), mode="lines" if d.task.box_lower is not None else "markers")
             self.fig.data[5].update(x=verts[:, 0], y=verts[:, 1], z=verts[:, 2], i=faces[:, 0], j=faces[:, 1],
                                     k=faces[:, 2], visible=bool(d.frame.obstacles))
-            self.fig.layout.title.text = (f"{d.meta.name}: platform at ({', '.join(f'{v:.2f}' for v in snap.pose[:3])}) m, "
-                                          + ("all cables within limits" if ok else "tension limits violated"))
+            self.fig.layout.title.text = (f"platform at ({', '.join(f'{v:.2f}' for v in snap.pose[:3])}) m: "
+                                          + ("cables within limits" if ok else "tension limits violated"))
         rows = []
         for i, name in enumerate(d.cable_names):
             ti = t[i]

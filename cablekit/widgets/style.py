@@ -6,7 +6,7 @@ import html
 
 __all__ = ["INK", "MUTED", "FRAME", "TASK", "OBSTACLE", "PLATFORM", "FEASIBLE", "INFEASIBLE",
            "TENSION_SCALE", "MARGIN_SCALE", "ERROR_SCALE", "STATUS_COLOURS",
-           "figure_layout", "status_badge", "message_html", "table_html", "CAUTION"]
+           "figure_layout", "status_badge", "message_html", "table_html", "summary_block", "CAUTION"]
 
 INK = "#23303b"
 MUTED = "#7a8791"
@@ -71,3 +71,10 @@ def table_html(header, rows, *, css_class: str = "ck-table") -> str:
     body = "".join("<tr>" + "".join(cell(v, "td") for v in r) + "</tr>" for r in rows)
     return (f"<table class='{css_class}' style='border-collapse:collapse;font-size:12px'>"
             f"<thead style='border-bottom:1px solid {FRAME}'><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+
+
+def summary_block(lines) -> str:
+    """A result's ``.summary()`` lines as a compact monospace block."""
+    text = html.escape("\n".join(str(x) for x in lines))
+    return (f"<div style='color:{MUTED};font-size:11.5px;line-height:1.35;white-space:pre-wrap;"
+            f"font-family:DejaVu Sans Mono, monospace;margin:4px 0'>{text}</div>")

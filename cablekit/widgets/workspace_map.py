@@ -8,7 +8,6 @@ chosen height or as a 3-D cloud of the feasible positions.  The numbers come fro
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass
 
 import ipywidgets as W
@@ -18,7 +17,7 @@ from .base import Panel
 from .figure import PlotFigure
 from .results import workspace_result
 from .state import DesignState
-from .style import (FEASIBLE, INFEASIBLE, INK, MARGIN_SCALE, MUTED, OBSTACLE, TENSION_SCALE, figure_layout,
+from .style import (FEASIBLE, INFEASIBLE, INK, MARGIN_SCALE, OBSTACLE, TENSION_SCALE, figure_layout, summary_block,
                     table_html)
 
 __all__ = ["WorkspaceMap", "MapData"]
@@ -149,11 +148,12 @@ class WorkspaceMap(Panel):
         d = self.state.design
         x, y, z = data.axes
         if levels:
-            keep = self.slice_z.value if self.slice_z.options and self.slice_z.value < len(z) else len(z) // 2
             opts = [(f"{v:.2f}", k) for k, v in enumerate(z)]
             if [o[0] for o in self.slice_z.options] != [o[0] for o in opts]:
+                first = self.result is None  # the first map opens at mid-height
+                keep = len(z) // 2 if first else min(self.slice_z.value, len(z) - 1)
                 self.slice_z.options = opts
-            self.slice_z.value = min(keep, len(z) - 1)
+                self.slice_z.value = keep
         k = self.slice_z.value
         values, scale, label = self._values(data)
         reason_scale = None
@@ -198,12 +198,11 @@ class WorkspaceMap(Panel):
                 cl.marker.colorbar.title.text = label
                 self.cloud_fig.data[1].update(x=a[:, 0], y=a[:, 1], z=a[:, 2])
                 self.cloud_fig.layout.title.text = f"{title} (feasible positions shown)"
-        rows = [[line] for line in data.summary]
         counts = np.bincount(data.reason.ravel(), minlength=len(data.reasons))
         reason_rows = [[label, f"{c:,}", f"{c / data.reason.size * 100:.1f} %"]
                        for label, c in zip(data.reasons, counts) if c]
         self.summary.value = (
             f"<div class='ck-ws-headline' style='font-size:14px;color:{FEASIBLE if share > 99.999 else INFEASIBLE}'>"
             f"feasible share of the task grid: <b class='ck-ws-share'>{share:.1f} %</b></div>"
-            f"<div style='color:{MUTED};font-size:12px'>{'<br>'.join(html.escape(str(r[0])) for r in rows)}</div>"
+            + summary_block(data.summary)
             + table_html(["grid positions by limiting reason", "positions", "share"], reason_rows))
