@@ -8,7 +8,7 @@ import pytest
 from cablekit.cables import rope_catalogue, smallest_rope
 from cablekit.checks import FAIL, PASS, WARN, run_all
 from cablekit.cli import main
-from cablekit.design import DesignError, design_from_dict, design_to_dict, loads_design
+from cablekit.design import DesignError, design_from_dict, design_to_dict, load_design, loads_design
 from cablekit.drive import (count_rate, deadband_length, design_checks, drum_fill, fleet_angle, motor_torque,
                             pitch_diameter, rope_class, size_drives)
 from cablekit.kinematics import length_per_count
@@ -144,9 +144,13 @@ def test_d_ratio_limits_follow_the_rope_construction(greenhouse, camera4):
     d_ratio = {c.subject: c for c in size_drives(camera4, step=0.4).checks if c.key == "drum_d_ratio"}
     c = next(iter(d_ratio.values()))
     assert c.value == pytest.approx(72 / 3) and c.limit == 18 and c.status == PASS  # 24:1, right at "desired"
-    # 7x7 rope on 25:1 fails the 28:1 minimum
+    # the demo's 7x19 rope on a 25:1 drum passes the 18:1 minimum and the 24:1 desirable ratio
     gh = {c.key: c for c in size_drives(greenhouse, step=0.3).rows[0].checks}
-    assert gh["drum_d_ratio"].value == pytest.approx(25) and gh["drum_d_ratio"].status == FAIL
+    assert gh["drum_d_ratio"].value == pytest.approx(25) and gh["drum_d_ratio"].status == PASS
+    # the same drum with 7x7 rope fails the 28:1 minimum
+    seven = _changed(greenhouse, "cable", construction="7x7 galvanised steel, 2 mm")
+    gh7 = {c.key: c for c in size_drives(seven, step=0.3).rows[0].checks}
+    assert gh7["drum_d_ratio"].limit == 28 and gh7["drum_d_ratio"].status == FAIL
 
 
 def test_rope_catalogue_values_from_the_handbook_table():
@@ -177,6 +181,7 @@ def test_a_weak_rope_fails_the_design_factor_and_names_a_stronger_one(greenhouse
 
 def test_local_practice_overrides_a_limit(greenhouse):
     doc = design_to_dict(greenhouse)
+    doc["cable"]["construction"] = "7x7 galvanised steel, 2 mm"
     doc["practice"] = {"d_ratio_min_7x7": 20, "d_ratio_desired_7x7": 24}
     res = size_drives(design_from_dict(doc), step=0.3)
     dd = [c for c in res.checks if c.key == "drum_d_ratio"]
@@ -191,7 +196,12 @@ def test_checks_carry_value_limit_margin_status_and_source(greenhouse_drive):
     for c in greenhouse_drive.checks:
         assert c.source and c.status in (PASS, WARN, FAIL)
     brake = next(c for c in greenhouse_drive.rows[0].checks if c.key == "brake")
-    assert brake.status == WARN  # the greenhouse winches have no brake
+    assert brake.status == PASS  # the greenhouse winches have brakes
+    from conftest import EXAMPLES
+
+    greenhouse = load_design(EXAMPLES / "greenhouse_tray_3cable.toml")
+    no_brake = size_drives(_changed(greenhouse, "winch", brake=False), step=0.3)
+    assert next(c for c in no_brake.rows[0].checks if c.key == "brake").status == WARN
     lines = greenhouse_drive.summary()
     assert any("limiting item" in line for line in lines)
     assert any("competent person" in line for line in lines)
