@@ -3,8 +3,8 @@
 Starts ``cablekit serve explore_layout`` on a free loopback port, opens it in headless
 chromium (no browser download: ``/usr/bin/chromium``), blocks every request that does not go
 to this machine, moves the footprint-width slider of the layout editor with the keyboard and
-checks that the workspace summary number, the workspace map's data and the rig view's exit
-points change; then types a frame height that makes the design invalid and checks that the
+checks that the rig view's exit points and cable tensions, the workspace summary and the
+workspace map's data change; then types a frame height that makes the design invalid and checks that the
 validation message appears while the numbers stay.  A screenshot is saved under artifacts/.
 The server is stopped by its PID.
 """
@@ -31,7 +31,6 @@ ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-f
         "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 LOAD_TIMEOUT = 150_000  # [ms] page + kernel + widgets on a busy 2-core machine
 
-pytestmark = [pytest.mark.browser, pytest.mark.slow]
 
 
 def _free_port() -> int:
@@ -96,6 +95,8 @@ _STATE_JS = """() => {
   const exits = rig && rig._fullData && rig._fullData[1];
   return {
     share: share ? share.textContent : null,
+    summary: (document.querySelector('.ck-ws-summary') || {}).textContent || null,
+    tensions: Array.from(document.querySelectorAll('.ck-rig-summary td:nth-child(2)')).map(td => td.textContent),
     map_sum: hm && hm.z ? sum(hm.z) : null,
     map_title: map && map._fullLayout ? map._fullLayout.title.text : null,
     exit_x: exits && exits.x ? Array.from(exits.x) : null,
@@ -115,6 +116,8 @@ def _wait_for(page, predicate, timeout_s: float, what: str):
     raise AssertionError(f"timed out waiting for {what}; last page state: {state}")
 
 
+@pytest.mark.browser
+@pytest.mark.slow
 def test_dashboard_in_a_real_browser(sync_playwright, server):
     url, proc, lines = server
     ARTIFACTS.mkdir(exist_ok=True)
@@ -149,10 +152,11 @@ def test_dashboard_in_a_real_browser(sync_playwright, server):
                 return s["exit_x"] and abs(max(s["exit_x"]) - min(s["exit_x"]) - width_before - 0.4) < 1e-6
 
             _wait_for(page, widened, 60, "the rig view to show the wider frame")
-            after = _wait_for(page, lambda s: s["share"] != before["share"] and s["map_sum"] != before["map_sum"],
-                              60, "the summary number and the workspace map to change")
+            after = _wait_for(page, lambda s: s["tensions"] != before["tensions"] and s["summary"] != before["summary"]
+                              and s["map_sum"] != before["map_sum"], 60,
+                              "the tensions, the workspace summary and the workspace map to change")
+            assert all(re.fullmatch(r"\d+\.\d", t) for t in after["tensions"]) and len(after["tensions"]) == 3
             assert widened(after)
-            assert after["map_title"] != before["map_title"]
 
             # an invalid edit: the frame height typed below the task box; message shown, numbers kept
             height = page.locator(".ck-layout-editor .ck-slider").nth(2).locator(".widget-readout")
@@ -161,7 +165,8 @@ def test_dashboard_in_a_real_browser(sync_playwright, server):
             page.keyboard.type("0.5")
             page.keyboard.press("Enter")
             invalid = _wait_for(page, lambda s: "task.box_upper" in s["problems"], 60, "the validation message")
-            assert invalid["share"] == after["share"] and invalid["map_sum"] == after["map_sum"]
+            for key in ("share", "summary", "tensions", "map_sum"):
+                assert invalid[key] == after[key], key
             page.set_viewport_size({"width": 1500, "height": 2600})  # the page scrolls inside; show it all
             page.wait_for_timeout(1500)
             page.screenshot(path=str(ARTIFACTS / "browser_dashboard.png"))
@@ -169,8 +174,62 @@ def test_dashboard_in_a_real_browser(sync_playwright, server):
             browser.close()
     assert all(not u.startswith(("http://127.0.0.1", "ws://127.0.0.1")) for u in blocked)
 
-    proc.send_signal(signal.SIGTERM)
+    proc.send_signal(signal.SIGINT)  # Ctrl-C, sent to the server's PID
     assert proc.wait(timeout=30) == 0
     time.sleep(0.2)
     assert any("stopping" in line for line in lines)
+    port = int(re.search(r":(\d+)/", url).group(1))
+    with pytest.raises(OSError):  # Voila is gone with it: nothing listens any more
+        socket.create_connection(("127.0.0.1", port), timeout=2).close()
     assert (ARTIFACTS / "browser_dashboard.png").stat().st_size > 10_000
+
+
+# --------------------------------------------------------------------------------------
+# `cablekit serve` without a browser
+# --------------------------------------------------------------------------------------
+def test_serve_finds_notebooks_by_name_and_refuses_unknown_ones():
+    from cablekit.cli import InputError
+    from cablekit.commands.serve import find_notebook
+
+    assert find_notebook("review") == ROOT / "notebooks" / "review.ipynb"
+    with pytest.raises(InputError, match="explore_layout"):
+        find_notebook("no_such_dashboard")
+
+
+def test_serve_needs_a_token_beyond_this_machine_and_a_free_port():
+    from cablekit.cli import InputError
+    from cablekit.commands.serve import _free_port, _is_loopback
+
+    assert _is_loopback("127.0.0.1") and _is_loopback("::1") and _is_loopback("localhost")
+    assert not _is_loopback("0.0.0.0") and not _is_loopback("192.168.1.20")
+    with pytest.raises(InputError):
+        _is_loopback("not-an-address")
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen()
+        with pytest.raises(InputError, match="not available"):
+            _free_port("127.0.0.1", busy.getsockname()[1])
+
+
+def test_serve_design_option_rewrites_only_a_copy(tmp_path):
+    import nbformat
+
+    from cablekit.commands.serve import parameterised_copy
+
+    original = ROOT / "notebooks" / "explore_layout.ipynb"
+    before = original.read_bytes()
+    design = ROOT / "examples" / "hall_sander_8cable.toml"
+    copy = parameterised_copy(original, tmp_path, {"DESIGN": design, "DESIGN_FOLDER": design.parent})
+    nb = nbformat.read(copy, as_version=4)
+    params = [c for c in nb.cells if "parameters" in c.metadata.get("tags", [])][0]
+    assert params.source == f"DESIGN = {str(design)!r}\nDESIGN_FOLDER = {str(design.parent)!r}\n"
+    assert original.read_bytes() == before
+
+
+def test_serve_with_a_broken_design_gives_the_validation_list(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text('format = "cablekit-design/1"\n[meta]\nname = "x"\n')
+    out = subprocess.run([*_cablekit_command(), "serve", "--design", str(bad), "--port", "0"], cwd=ROOT,
+                         capture_output=True, text=True, timeout=120)
+    assert out.returncode == 3
+    assert "problems in the design" in out.stderr and "frame" in out.stderr
