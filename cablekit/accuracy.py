@@ -54,6 +54,7 @@ import io
 import json
 import math
 from dataclasses import asdict, dataclass, field, replace
+from pathlib import Path
 from typing import Any, Callable, Mapping
 
 import numpy as np

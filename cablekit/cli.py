@@ -28,11 +28,36 @@ EXIT_INVALID = 3
 EXIT_CHECK_FAILED = 4
 EXIT_INTERNAL = 70
 
-__all__ = ["main", "EXIT_OK", "EXIT_USAGE", "EXIT_INVALID", "EXIT_CHECK_FAILED", "EXIT_INTERNAL", "InputError"]
+__all__ = ["main", "EXIT_OK", "EXIT_USAGE", "EXIT_INVALID", "EXIT_CHECK_FAILED", "EXIT_INTERNAL", "InputError",
+           "option_quantity"]
 
 
 class InputError(ValueError):
     """Bad input from the user (not a bug): printed as one clear message, exit code 3."""
+
+
+def option_quantity(text, dimension: str, option: str, *, positive: bool = True):
+    """Parse a command-line quantity such as ``--step "20 mm"`` into an SI float.
+
+    ``None`` passes through (option not given). Raises :class:`InputError` naming the option
+    for a missing or wrong unit, a non-finite value, or a value that is not greater than zero
+    (``positive``) or is negative.
+    """
+    import math
+
+    from .units import UnitError, parse_quantity
+
+    if text is None:
+        return None
+    try:
+        value = parse_quantity(text, dimension, field=option)
+    except UnitError as exc:
+        raise InputError(str(exc)) from None
+    if not math.isfinite(value) or (positive and not value > 0) or value < 0:
+        kind = dimension.replace("_", " ")
+        raise InputError(f"{option}: {text!r} must be a positive {kind}" if positive
+                         else f"{option}: {text!r} must be a {kind} of zero or more")
+    return value
 
 
 def _commands():

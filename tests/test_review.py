@@ -18,7 +18,7 @@ from cablekit import checks as checks_mod
 from cablekit import review
 from cablekit.checks import FAIL, PASS, WARN, Check, run_all
 from cablekit.cli import EXIT_CHECK_FAILED, EXIT_INVALID, EXIT_OK, main
-from cablekit.design import content_hash, load_design
+from cablekit.design import content_hash
 from cablekit.kinematics import cable_lengths, length_per_count
 from cablekit.region import task_poses
 from cablekit.review import LatexError, build_review, latex_to_mathml, write_review

@@ -5,9 +5,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity
 from ..design import load_design
-from ..units import UnitError, parse_quantity
 
 NAME = "accuracy"
 HELP = "predict how precisely the platform lands over the task region (error budget, maps)"
@@ -56,14 +55,7 @@ def run(args) -> int:
     from ..checks import FAIL
 
     d = load_design(args.design)
-    step = None
-    if args.step is not None:
-        try:
-            step = parse_quantity(args.step, "length", field="--step")
-        except UnitError as exc:
-            raise InputError(str(exc)) from None
-        if step <= 0:
-            raise InputError(f"--step: must be a positive length, got {args.step!r}")
+    step = option_quantity(args.step, "length", "--step")
     for name in ("max_poses", "builds", "mc_poses"):
         if getattr(args, name) < 1:
             raise InputError(f"--{name.replace('_', '-')}: must be at least 1, got {getattr(args, name)}")

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity
 from ..design import load_design
 
 NAME = "drive"
@@ -29,17 +29,9 @@ def _progress(done: int, total: int) -> None:
 
 def run(args) -> int:
     from ..drive import numbers_text, size_drives
-    from ..units import UnitError, parse_quantity
 
     d = load_design(args.design)
-    step = None
-    if args.step is not None:
-        try:
-            step = parse_quantity(args.step, "length", field="--step")
-        except UnitError as exc:
-            raise InputError(str(exc)) from None
-        if not step > 0:
-            raise InputError(f"--step must be a positive length, got {args.step!r}")
+    step = option_quantity(args.step, "length", "--step")
     try:
         res = size_drives(d, step=step, progress=_progress)
     except ValueError as exc:  # an impossible grid or drum (e.g. a drum narrower than one wrap)

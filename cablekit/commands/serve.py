@@ -157,7 +157,9 @@ def run(args) -> int:
         cmd = [sys.executable, "-m", "voila", str(notebook), f"--Voila.config_file_paths={[str(workdir)]!r}"]
         # its own session: a Ctrl-C in the terminal reaches only us, and we stop Voila in order
         proc = subprocess.Popen(cmd, cwd=str(notebook.parent), start_new_session=True)
-        previous = signal.signal(signal.SIGTERM, _raise_stop)
+        # Ctrl-C (SIGINT) and SIGTERM both stop Voila in order; SIGINT is caught explicitly since
+        # a shell starting us in the background would otherwise have it ignored
+        previous = {s: signal.signal(s, _raise_stop) for s in (signal.SIGINT, signal.SIGTERM)}
         try:
             if not _wait_for_port(proc, args.ip, port, START_TIMEOUT):
                 code = proc.poll()
@@ -178,8 +180,13 @@ def run(args) -> int:
             print("cablekit serve: stopping", flush=True)
             return 0
         finally:
-            signal.signal(signal.SIGTERM, previous)
-            _stop(proc)
+            for s in previous:  # a second Ctrl-C must not cut the shutdown short
+                signal.signal(s, signal.SIG_IGN)
+            try:
+                _stop(proc)
+            finally:
+                for s, handler in previous.items():
+                    signal.signal(s, handler)
     finally:
         shutil.rmtree(workdir, ignore_errors=True)
 

@@ -2,12 +2,10 @@
 
 from __future__ import annotations
 
-import math
 import sys
 
-from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity
 from ..design import load_design
-from ..units import UnitError, parse_quantity
 
 NAME = "task"
 HELP = "check a task's tool-tip targets and the moves between them; write the plan"
@@ -35,22 +33,12 @@ def add_arguments(p) -> None:
                    help="grow every obstacle box by this much (default: 0 mm)")
 
 
-def _quantity(text: str, dimension: str, option: str, *, positive: bool) -> float:
-    try:
-        value = parse_quantity(text, dimension, field=option)
-    except UnitError as exc:
-        raise InputError(str(exc)) from None
-    if (positive and not value > 0) or value < 0 or not math.isfinite(value):
-        raise InputError(f"{option}: {text!r} must be {'greater than zero' if positive else 'zero or more'}")
-    return value
-
-
 def run(args) -> int:
     from ..task import check_task, read_task, write_plan
 
-    step = _quantity(args.step, "length", "--step", positive=True)
-    angle_step = _quantity(args.angle_step, "angle", "--angle-step", positive=True)
-    clearance = _quantity(args.clearance, "length", "--clearance", positive=False)
+    step = option_quantity(args.step, "length", "--step", positive=True)
+    angle_step = option_quantity(args.angle_step, "angle", "--angle-step", positive=True)
+    clearance = option_quantity(args.clearance, "length", "--clearance", positive=False)
     d = load_design(args.design)
     if d.sections.get("arm") is None:
         raise InputError(f"{args.design} has no [arm] section: the task check needs the tool arm "

@@ -8,9 +8,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..cli import InputError
+from ..cli import InputError, option_quantity
 from ..design import load_design
-from ..units import UnitError, parse_quantity, parse_vector
+from ..units import UnitError, parse_vector
 
 NAME = "workspace"
 HELP = "map where the platform can hold its load over the task region"
@@ -59,18 +59,6 @@ class _Bar:
         self.stream.flush()
 
 
-def _step(text):
-    if text is None:
-        return None
-    try:
-        step = parse_quantity(text, "length", field="--step")
-    except UnitError as exc:
-        raise InputError(str(exc)) from None
-    if not np.isfinite(step) or step <= 0:
-        raise InputError(f"--step: the grid step must be a positive length, got {text!r}")
-    return step
-
-
 def _orientations(text, design):
     if text is None:
         return None
@@ -93,7 +81,7 @@ def run(args) -> int:
     from ..workspace import compute_workspace
 
     d = load_design(args.design)
-    step = _step(args.step)
+    step = option_quantity(args.step, "length", "--step")
     oris = _orientations(args.orientations, d)
     out = Path(args.output) if args.output else None
     if out is not None and not out.parent.is_dir() and str(out.parent):
