@@ -772,7 +772,7 @@ def tensions_with_sag(design, poses, *, max_iterations: int = 30, rtol: float = 
     SagEquilibrium
     """
     from .kinematics import as_poses
-    from .statics import external_wrench, solve_lp, solve_square, tension_limits, tensions_at
+    from .statics import external_wrench, solve_tensions, tension_limits, tensions_at
 
     q = as_poses(design, poses)
     res = tensions_at(design, q)
@@ -798,15 +798,7 @@ def tensions_with_sag(design, poses, *, max_iterations: int = 30, rtol: float = 
         W[:, :3, :] = np.swapaxes(d, 1, 2)
         if n == 6:
             W[:, 3:, :] = np.swapaxes(np.cross(r_att, d), 1, 2)
-        if m == n:
-            new = solve_square(W, w_ext, lim.t_min, lim.t_max)
-        else:
-            try:
-                from .tension import distribute
-            except ImportError:
-                new = solve_lp(W, w_ext, lim.t_min, lim.t_max)
-            else:
-                new = distribute(W, w_ext, lim.t_min, lim.t_max)
+        new = solve_tensions(W, w_ext, lim.t_min, lim.t_max)
         change = np.max(np.abs(new.tensions - t), axis=1) / np.maximum(np.max(np.abs(t), axis=1), 1e-300)
         settled = good & np.isfinite(change) & (change <= rtol)
         res = new

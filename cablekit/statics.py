@@ -30,6 +30,7 @@ __all__ = [
     "rotation_matrices",
     "motor_cable_force",
     "tensions_at",
+    "solve_tensions",
 ]
 
 
@@ -203,22 +204,30 @@ def solve_lp(W, w_ext, t_min, t_max) -> TensionResult:
                          method="max-margin (linear program, HiGHS)")
 
 
+def solve_tensions(W, w_ext, t_min, t_max, *, method: str = "auto") -> TensionResult:
+    """Tension distribution for stacked structure matrices (N, n, m) and wrenches (N, n).
+
+    ``method="auto"``: the unique solution when m = n, else the fast exact batched path of
+    :func:`cablekit.tension.distribute`; ``"lp"``: the per-pose linear program.
+    """
+    if method not in ("auto", "lp"):
+        raise ValueError(f"method must be 'auto' or 'lp', got {method!r}")
+    W = np.asarray(W, float)
+    if method == "lp":
+        return solve_lp(W, w_ext, t_min, t_max)
+    if W.shape[1] == W.shape[2]:
+        return solve_square(W, w_ext, t_min, t_max)
+    from .tension import distribute
+
+    return distribute(W, w_ext, t_min, t_max)
+
+
 def tensions_at(design, poses, *, extra=None, method: str = "auto") -> TensionResult:
     """Tensions for the design at ``poses`` under gravity (+ ``extra`` wrench).
 
-    ``method="auto"`` uses the fast exact batched path when available, ``"lp"`` forces the
-    per-pose linear program.
+    ``method="auto"`` uses the fast exact batched path, ``"lp"`` the per-pose linear program.
     """
     q = as_poses(design, poses)
-    W = structure_matrix(design, q)
-    w = external_wrench(design, q, extra=extra)
     lim = tension_limits(design)
-    if method == "lp":
-        return solve_lp(W, w, lim.t_min, lim.t_max)
-    if design.m == design.dof:
-        return solve_square(W, w, lim.t_min, lim.t_max)
-    try:
-        from .tension import distribute  # the fast exact path (workspace issue)
-    except ImportError:
-        return solve_lp(W, w, lim.t_min, lim.t_max)
-    return distribute(W, w, lim.t_min, lim.t_max)
+    return solve_tensions(structure_matrix(design, q), external_wrench(design, q, extra=extra), lim.t_min,
+                          lim.t_max, method=method)
