@@ -233,3 +233,39 @@ def test_serve_with_a_broken_design_gives_the_validation_list(tmp_path):
                          capture_output=True, text=True, timeout=120)
     assert out.returncode == 3
     assert "problems in the design" in out.stderr and "frame" in out.stderr
+
+
+@pytest.mark.slow
+def test_serving_beyond_this_machine_requires_the_token(tmp_path):
+    import urllib.error
+    import urllib.request
+
+    class NoRedirect(urllib.request.HTTPRedirectHandler):
+        def redirect_request(self, *args, **kwargs):
+            return None
+
+    opener = urllib.request.build_opener(NoRedirect)
+    env = dict(os.environ, CABLEKIT_CACHE_DIR=os.environ.get("CABLEKIT_CACHE_DIR", str(tmp_path / "cache")))
+    proc = subprocess.Popen([*_cablekit_command(), "serve", "review", "--ip", "0.0.0.0", "--port", "0"], cwd=ROOT,
+                            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True, env=env)
+    try:
+        line = ""
+        end = time.monotonic() + 90
+        while "http://" not in line and time.monotonic() < end and proc.poll() is None:
+            line = proc.stdout.readline()
+        url = re.search(r"http://\S+", line).group(0)
+        token = re.search(r"\?token=([\w-]{20,})$", url).group(1)  # one was generated and printed
+        base = url.split("?")[0]
+        for bad in (base, f"{base}?token=wrong"):
+            with pytest.raises(urllib.error.HTTPError) as err:
+                opener.open(bad, timeout=30)
+            assert err.value.code in (302, 403) and "login" in err.value.headers.get("Location", "/login")
+        with opener.open(f"{base}?token={token}", timeout=60) as response:  # headers only, page streams
+            assert response.status == 200
+    finally:
+        proc.send_signal(signal.SIGINT)
+        try:
+            assert proc.wait(timeout=30) == 0
+        finally:
+            if proc.poll() is None:
+                proc.kill()

@@ -169,6 +169,29 @@ def test_exit_point_box_and_winch_count_edit_the_rig(explore):
     assert len(drive.result.rows) == 4
 
 
+def test_platform_size_and_catalogue_rope(tmp_path):
+    from cablekit.cables import rope_catalogue
+
+    state = DesignState(EXAMPLES / "hall_sander_8cable.toml")
+    editor = LayoutEditor(state)
+    size = edits.platform_size(state.design)
+    editor.platform_size[0].value = 2 * size[0]
+    original = load_design(EXAMPLES / "hall_sander_8cable.toml")
+    b0, b1 = original.attachments, state.design.attachments
+    assert np.allclose(b1[:, 0], 2 * b0[:, 0]) and np.allclose(b1[:, 1:], b0[:, 1:])
+    assert state.design.platform.body_half_size[0] == pytest.approx(2 * original.platform.body_half_size[0])
+    ropes = rope_catalogue()
+    k = max(range(len(ropes)), key=lambda i: ropes[i].breaking_force)
+    editor.rope_choice.value = k
+    assert state.design.cable.diameter == ropes[k].diameter
+    assert state.design.cable.breaking_force == ropes[k].breaking_force
+    assert editor.rope_diameter.value == pytest.approx(ropes[k].diameter * 1e3)
+    editor.rope_mbf.value = 20.0  # edited by hand: no longer the catalogue entry
+    assert editor.rope_choice.value == -1
+    point = LayoutEditor(DesignState(EXAMPLES / "greenhouse_tray_3cable.toml"))
+    assert all(b.disabled for b in point.platform_size)
+
+
 def test_rig_view_tensions_balance_gravity(state):
     """Concurrent forces in equilibrium: sum of t_i u_i + m g = 0 (Meriam and Kraige,
     *Engineering Mechanics: Statics*, 7th ed., 2012, sec. 3/4), checked with unit vectors

@@ -33,6 +33,9 @@ __all__ = [
     "with_cable",
     "with_winches",
     "with_task_box",
+    "platform_size",
+    "with_platform_size",
+    "with_catalogue_rope",
 ]
 
 
@@ -155,3 +158,35 @@ def with_task_box(design: Design, lower, upper) -> Design:
     if not all(math.isfinite(v) for v in (*lo, *hi)):
         raise EditError("task box: corners must be finite lengths in m")
     return replace(design, task=replace(design.task, box_lower=lo, box_upper=hi))
+
+
+def platform_size(design: Design) -> tuple[float, float, float]:
+    """Extent of a rigid platform: its attachment points' bounding box (x, y, z) [m]."""
+    b = design.attachments
+    return tuple(float(v) for v in np.ptp(b, axis=0)) if len(b) else (0.0, 0.0, 0.0)
+
+
+def with_platform_size(design: Design, size) -> Design:
+    """Scale a rigid platform's attachments and body box to a new extent (x, y, z) [m].
+
+    Each axis scales about the platform's reference point; an axis of zero extent stays as is.
+    """
+    if design.platform.kind != "rigid":
+        raise EditError("platform size: a point platform has no size (every cable meets at one point)")
+    old = np.array(platform_size(design))
+    new = np.asarray(size, float)
+    if new.shape != (3,) or not np.all(np.isfinite(new)) or np.any(new < 0):
+        raise EditError(f"platform size: three lengths >= 0 in m, got {size!r}")
+    scale = np.where(old > 0, new / np.where(old > 0, old, 1.0), 1.0)
+    att = tuple(tuple(float(v) for v in b * scale) for b in design.attachments)
+    body = tuple(float(v) for v in np.asarray(design.platform.body_half_size) * scale)
+    return replace(design, platform=replace(design.platform, attachments=att, body_half_size=body))
+
+
+def with_catalogue_rope(design: Design, entry) -> Design:
+    """Use a catalogue rope (:class:`cablekit.cables.RopeEntry`): its diameter, breaking force
+    and construction; axial stiffness and weight per metre stay as they were (check them)."""
+    construction = f"{entry.construction} {entry.material}, {entry.designation}"
+    cable = replace(design.cable, diameter=float(entry.diameter), breaking_force=float(entry.breaking_force),
+                    construction=construction)
+    return replace(design, cable=cable)

@@ -55,9 +55,10 @@ class LayoutEditor(W.VBox):
 
     * frame: footprint width x [m], depth y [m], height of the top exits z [m], number of
       winches (point platforms: re-lays the exits on a regular polygon), exit points [m];
-    * platform mass [kg], payload mass [kg];
-    * rope: diameter [mm], minimum breaking force [kN], axial stiffness EA [kN], least taut
-      tension [N];
+    * platform size x, y, z [m] (rigid platforms: scales the attachments and the body box),
+      platform mass [kg], payload mass [kg];
+    * rope: a rope from the catalogue (:func:`cablekit.cables.rope_catalogue`), or diameter
+      [mm], minimum breaking force [kN], axial stiffness EA [kN], least taut tension [N];
     * winches (all of them): drum diameter [mm], gear ratio [-], gear efficiency [-], motor
       rated and peak torque [N·m];
     * task box corners [m].
@@ -75,8 +76,14 @@ class LayoutEditor(W.VBox):
                                        continuous_update=False, style=_LABEL, layout=_WIDE)
         self.exit_rows = W.VBox()
         self.exit_rows.add_class("ck-exits")
+        self.platform_size = [W.FloatText(layout=_CELL, continuous_update=False) for _ in range(3)]
         self.platform_mass = _number("platform mass [kg]", d.platform.mass)
         self.payload_mass = _number("payload mass [kg]", d.payload.mass)
+        self._ropes = self._catalogue()
+        self.rope_choice = W.Dropdown(options=[("keep the rope below", -1)] + [
+            (f"{r.designation}: {r.construction} {r.material}, {r.diameter * 1e3:g} mm, MBF {r.breaking_force / 1e3:.2f} kN", k)
+            for k, r in enumerate(self._ropes)], value=-1, description="rope from the catalogue",
+            style=_LABEL, layout=W.Layout(width="420px"))
         self.rope_diameter = _number("rope diameter [mm]", d.cable.diameter * 1e3)
         self.rope_mbf = _number("min. breaking force [kN]", d.cable.breaking_force / 1e3)
         self.rope_ea = _number("axial stiffness EA [kN]", d.cable.axial_stiffness / 1e3)
@@ -108,6 +115,9 @@ class LayoutEditor(W.VBox):
         self.peak_torque.observe(lambda c: self._edit("motor peak torque", edits.with_winches, motor_peak_torque=c.new), "value")
         for box in (*self.task_lower, *self.task_upper):
             box.observe(self._task_box, "value")
+        for box in self.platform_size:
+            box.observe(self._platform_size, "value")
+        self.rope_choice.observe(self._rope_choice, "value")
 
         def section(title, *items):
             head = W.HTML(f"<b>{title}</b>")
@@ -121,8 +131,14 @@ class LayoutEditor(W.VBox):
             self.banner,
             section("Frame", self.width, self.depth, self.height, self.winch_count,
                     W.HTML("exit points, where each cable leaves the frame [m]:"), self.exit_rows),
-            section("Platform and payload", self.platform_mass, self.payload_mass),
-            section("Rope (every cable)", self.rope_diameter, self.rope_mbf, self.rope_ea, self.rope_tmin),
+            section("Platform and payload",
+                    W.HBox([W.Label("platform size x, y, z [m]", layout=W.Layout(width="214px")),
+                            *self.platform_size]),
+                    self.platform_mass, self.payload_mass),
+            section("Rope (every cable)", self.rope_choice, self.rope_diameter, self.rope_mbf, self.rope_ea,
+                    self.rope_tmin,
+                    W.HTML("<span style='font-size:11px'>a catalogue rope sets diameter and breaking force; "
+                           "check its axial stiffness and weight per metre</span>")),
             section("Winches (every winch)", self.drum_diameter, self.gear_ratio, self.efficiency,
                     self.rated_torque, self.peak_torque),
             section("Task box", task_grid),
@@ -148,6 +164,20 @@ class LayoutEditor(W.VBox):
         row = self.exit_rows.children[index].children
         pos = [box.value for box in row[1:4]]
         self._edit(f"exit point {index + 1}", edits.with_exit_position, index=index, position=pos)
+
+    def _platform_size(self, change) -> None:
+        self._edit("platform size", edits.with_platform_size, size=[b.value for b in self.platform_size])
+
+    def _rope_choice(self, change) -> None:
+        if change.new is not None and change.new >= 0:
+            self._edit("catalogue rope", edits.with_catalogue_rope, entry=self._ropes[change.new])
+
+    @staticmethod
+    def _catalogue():
+        from .base import optional_module
+
+        cables = optional_module("cables")
+        return tuple(cables.rope_catalogue()) if cables is not None and hasattr(cables, "rope_catalogue") else ()
 
     def _task_box(self, change) -> None:
         self._edit("task box", edits.with_task_box, lower=[b.value for b in self.task_lower],
@@ -197,6 +227,14 @@ class LayoutEditor(W.VBox):
                            (self.efficiency, w0.efficiency), (self.rated_torque, w0.motor_rated_torque),
                            (self.peak_torque, w0.motor_peak_torque)):
                 _show(box, v)
+            k = self.rope_choice.value
+            if k is not None and k >= 0 and (self._ropes[k].diameter, self._ropes[k].breaking_force) != \
+                    (d.cable.diameter, d.cable.breaking_force):
+                self.rope_choice.value = -1  # the rope was edited since: no longer that catalogue entry
+            rigid = d.platform.kind == "rigid"
+            for b, v in zip(self.platform_size, edits.platform_size(d)):
+                _show(b, v)
+                b.disabled = not rigid
             has_box = d.task.box_lower is not None
             for boxes, corner in ((self.task_lower, d.task.box_lower), (self.task_upper, d.task.box_upper)):
                 for b, v in zip(boxes, corner or (0.0, 0.0, 0.0)):
