@@ -364,6 +364,12 @@ def test_plot_figure_keeps_its_synced_state_current():
     assert "_ck_bundle" in state and len(state["_ck_bundle_hash"]) == 64
     import plotly.graph_objects as go
 
+    from cablekit.widgets.figure import SENDERS
+
+    assert all(callable(getattr(go.FigureWidget, name, None)) for name in SENDERS)  # plotly still has them
+    fig.add_bar(x=["a"], y=[1])
+    fig.data = fig.data[:1]
+    assert [t["type"] for t in fig._widget_data] == ["scatter"]  # traces added and deleted: state follows
     src = go.Figure(go.Bar(x=["a", "b"], y=[1, 2]))
     show_figure(fig, src)
     assert fig.data[0].type == "bar" and list(fig.data[0].y) == [1, 2]

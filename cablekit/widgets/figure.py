@@ -121,34 +121,22 @@ class PlotFigure(go.FigureWidget):
         self._trait_values["_widget_data"] = deepcopy(self._data)
         self._trait_values["_widget_layout"] = deepcopy(self._layout_obj._props)
 
-    def _send_relayout_msg(self, *args, **kwargs):
-        super()._send_relayout_msg(*args, **kwargs)
+
+def _keeping_state(name: str):
+    """Plotly's message sender ``name``, followed by :meth:`PlotFigure._keep_state`."""
+    def method(self, *args, **kwargs):
+        getattr(super(PlotFigure, self), name)(*args, **kwargs)
         self._keep_state()
 
-    def _send_restyle_msg(self, *args, **kwargs):
-        super()._send_restyle_msg(*args, **kwargs)
-        self._keep_state()
+    method.__name__ = name
+    return method
 
-    def _send_update_msg(self, *args, **kwargs):
-        super()._send_update_msg(*args, **kwargs)
-        self._keep_state()
 
-    def _send_addTraces_msg(self, *args, **kwargs):
-        super()._send_addTraces_msg(*args, **kwargs)
-        self._keep_state()
-
-    def _send_deleteTraces_msg(self, *args, **kwargs):
-        super()._send_deleteTraces_msg(*args, **kwargs)
-        self._keep_state()
-
-    def _send_moveTraces_msg(self, *args, **kwargs):
-        super()._send_moveTraces_msg(*args, **kwargs)
-        self._keep_state()
-
-    def _send_animate_msg(self, *args, **kwargs):
-        super()._send_animate_msg(*args, **kwargs)
-        self._keep_state()
-
+# every way plotly's Python side sends a change of the figure to the page
+SENDERS = ("_send_relayout_msg", "_send_restyle_msg", "_send_update_msg", "_send_addTraces_msg",
+           "_send_deleteTraces_msg", "_send_moveTraces_msg", "_send_animate_msg")
+for _name in SENDERS:
+    setattr(PlotFigure, _name, _keeping_state(_name))
 
 def show_figure(target: go.FigureWidget, source: go.Figure) -> None:
     """Make ``target`` show ``source`` (a result's ``.figure()``), updating traces in place.

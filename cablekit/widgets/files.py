@@ -79,27 +79,25 @@ class SaveLoadPanel(W.VBox):
         s = self.state
         self.message.value = message_html(s.status, level="ok" if ok else "error", lines=() if ok else s.problems)
 
-    def save(self) -> bool:
-        """Save the current design under the typed name (validated, atomic)."""
+    def _with_path(self, action) -> bool:
+        """Run ``action(path)`` for the typed name inside the folder; report the outcome."""
         try:
             path = resolve_in_folder(self.folder, self.name.value)
         except ValueError as exc:
             self.message.value = message_html(str(exc), level="error")
             return False
-        ok = self.state.save(path, header=f"saved from a cablekit dashboard: {self.state.design.meta.name}")
+        ok = action(path)
         self._report(ok)
         return ok
 
+    def save(self) -> bool:
+        """Save the current design under the typed name (validated, atomic)."""
+        header = f"saved from a cablekit dashboard: {self.state.design.meta.name}"
+        return self._with_path(lambda path: self.state.save(path, header=header))
+
     def load(self) -> bool:
         """Load the typed file name from the folder."""
-        try:
-            path = resolve_in_folder(self.folder, self.name.value)
-        except ValueError as exc:
-            self.message.value = message_html(str(exc), level="error")
-            return False
-        ok = self.state.load(path)
-        self._report(ok)
-        return ok
+        return self._with_path(self.state.load)
 
     def _open_demo(self, change) -> None:
         if change.new:
