@@ -212,7 +212,9 @@ def test_rig_view_tensions_balance_gravity(state):
 
 def test_workspace_map_shows_the_result_numbers(explore):
     ws = explore.panels["workspace"]
+    explore.editor.width.value = 2.2  # a narrow frame: part of the task box loses a taut cable
     data = ws.result
+    assert 0 < data.feasible.mean() < 1
     res = data.result
     k = ws.slice_z.value
     nx, ny, nz = (len(a) for a in res.axes)
@@ -222,14 +224,20 @@ def test_workspace_map_shows_the_result_numbers(explore):
     assert share in ws.summary.value
     ws.quantity.value = "reason"
     assert ws.slice_fig.data[0].colorbar.title.text == "reason"
+    assert set(np.unique(np.array(ws.slice_fig.data[0].z, float))) <= set(range(len(data.reasons)))
+    ws.quantity.value = "margin"
     ws.view.value = "3d"
-    cloud = ws.cloud_fig.data[0]
-    assert len(cloud.x) == int(np.sum(res.position_feasible[res.from_box]))
+    assert len(ws.cloud_fig.data[0].x) == int(np.sum(res.position_feasible[res.from_box]))
     ws.slice_z.value = 0
     ws.view.value = "slice"
     assert "z = " + f"{res.axes[2][0]:.2f}" in ws.slice_fig.layout.title.text
+    ws.quantity.value = "reason"
+    ws.view.value = "3d"  # the reasons are shown at every position, not only the feasible ones
+    assert len(ws.cloud_fig.data[0].x) == nx * ny * nz
     ws.step.value = -5.0  # a bad grid step: message, last map kept
     assert ws.result is data and "grid step" in ws.status.value
+    ws.step.value = 2.0  # too fine for an interactive map: message, last map kept
+    assert ws.result is data and "coarser step" in ws.status.value
 
 
 def test_drivetrain_panel_follows_a_weaker_motor(explore):

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import asyncio
 import traceback
-from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -185,9 +184,6 @@ class DesignState(traitlets.HasTraits):
         if full not in self._cache:
             self._cache[full] = compute(self.design)
         return self._cache[full]
-
-    def rename(self, name: str) -> bool:
-        return self.propose(lambda d: replace(d, meta=replace(d.meta, name=name)), what="design name")
 
 
 def guarded(status_setter: Callable[[str], None], what: str, fn: Callable[[], Any]):

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import ipywidgets as W
 import numpy as np
 
+from ..region import task_poses
 from .base import Panel
 from .figure import PlotFigure
 from .results import workspace_result
@@ -22,6 +23,7 @@ from .style import (FEASIBLE, INFEASIBLE, INK, MARGIN_SCALE, OBSTACLE, TENSION_S
 
 __all__ = ["WorkspaceMap", "MapData"]
 
+MAX_MAP_POSES = 250_000  # poses an interactive map computes and draws (finer maps: the command line)
 QUANTITIES = {"margin": "tension margin [N]", "tension": "highest cable tension [N]", "reason": "limiting reason"}
 
 
@@ -125,6 +127,11 @@ class WorkspaceMap(Panel):
         step = self.step.value * 1e-3
         if not np.isfinite(step) or step <= 0:
             raise ValueError(f"grid step: a positive length in mm, got {self.step.value!r}")
+        n = len(task_poses(design, step=step).poses)
+        if n > MAX_MAP_POSES:
+            raise ValueError(f"grid step: {self.step.value:g} mm gives {n:,} poses, more than the "
+                             f"{MAX_MAP_POSES:,} an interactive map draws; use a coarser step here, or "
+                             "`cablekit workspace DESIGN --step ...` for a finer map")
         return map_data(workspace_result(self.state, step))
 
     # -- draw -------------------------------------------------------------------------------
@@ -189,7 +196,8 @@ class WorkspaceMap(Panel):
                 self.slice_fig.layout.title.text = f"{title}, slice at z = {z[k]:.2f} m"
         else:
             X, Y, Z = np.meshgrid(x, y, z, indexing="ij")
-            mask = data.feasible
+            # margin and tension: the feasible region; reason: every position, coloured by why
+            mask = data.feasible if scale is not None else np.ones_like(data.feasible)
             with self.cloud_fig.batch_update():
                 cl = self.cloud_fig.data[0]
                 cl.update(x=X[mask], y=Y[mask], z=Z[mask])
@@ -197,7 +205,7 @@ class WorkspaceMap(Panel):
                 cl.marker.colorscale = scale or reason_scale
                 cl.marker.colorbar.title.text = label
                 self.cloud_fig.data[1].update(x=a[:, 0], y=a[:, 1], z=a[:, 2])
-                self.cloud_fig.layout.title.text = f"{title} (feasible positions shown)"
+                self.cloud_fig.layout.title.text = title + (" (feasible positions shown)" if scale is not None else "")
         counts = np.bincount(data.reason.ravel(), minlength=len(data.reasons))
         reason_rows = [[label, f"{c:,}", f"{c / data.reason.size * 100:.1f} %"]
                        for label, c in zip(data.reasons, counts) if c]
