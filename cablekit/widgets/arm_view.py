@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import ipywidgets as W
 import numpy as np
 
+from ..kinematics import cable_vectors, unit_vectors
 from .base import NotAvailable, Panel
 from .figure import PlotFigure, show_figure
 from .results import arm_reach_result, need
@@ -22,6 +23,7 @@ from .style import FRAME, PLATFORM, TASK, figure_layout, summary_block
 __all__ = ["ArmReachView", "ArmSnapshot"]
 
 _SWEEP = 73  # roll samples of the platform path drawn for the full wrist turn
+_STUB = 0.25  # [m] length of cable drawn from the platform in the pivot view
 
 
 @dataclass(frozen=True)
@@ -50,7 +52,8 @@ class ArmReachView(Panel):
         self.reach_fig = PlotFigure()
         self.reach_fig.update_layout(height=420)
         self.pivot_fig = PlotFigure()
-        self.pivot_fig.add_scatter3d(name="cables", mode="lines", line=dict(color=FRAME, width=3), hoverinfo="skip")
+        self.pivot_fig.add_scatter3d(name="cables (first 25 cm)", mode="lines", line=dict(color=FRAME, width=3),
+                                     hoverinfo="skip")
         self.pivot_fig.add_scatter3d(name="platform path for a full wrist turn", mode="lines",
                                      line=dict(color=TASK, width=4))
         self.pivot_fig.add_scatter3d(name="arm", mode="lines+markers", line=dict(color=PLATFORM, width=7),
@@ -86,11 +89,11 @@ class ArmReachView(Panel):
     def draw(self, snap: ArmSnapshot) -> None:
         d = self.state.design
         show_figure(self.reach_fig, snap.reach.figure(color=self.colour.value))
-        p = snap.pivot.platform_poses[0, :3]
-        cables = []
-        for a in d.exits:
-            cables += [a, p, [np.nan] * 3]
-        cables = np.array(cables)
+        # the first stretch of each cable from the platform (the scene stays around the arm)
+        pose = snap.pivot.platform_poses[:1]
+        start = d.exits - cable_vectors(d, pose)[0]
+        end = start + _STUB * unit_vectors(d, pose)[0]
+        cables = np.concatenate([start[:, None], end[:, None], np.full((d.m, 1, 3), np.nan)], axis=1).reshape(-1, 3)
         path = snap.sweep.platform_poses[:, :3]
         tip = snap.pivot.tips[0]
 
