@@ -39,6 +39,7 @@ import numpy as np
 from . import __version__
 from .checks import FAIL, PASS, WARN, Check, run_all, worst_status
 from .design import atomic_write_text, content_hash
+from .equations import module_equations
 
 __all__ = [
     "Quantity",
@@ -661,24 +662,6 @@ def _stage_progress(progress: Progress) -> Callable[[str, int, int], None]:
     return report
 
 
-def _module_equations(mod, design) -> tuple[tuple[str, str], ...]:
-    """The module's own LaTeX, ``latex_equations()``, ``latex_equations(kind)`` or
-    ``latex_equations(design)``; empty when it has none."""
-    fn = getattr(mod, "latex_equations", None)
-    if fn is None:
-        return ()
-    import inspect
-
-    params = list(inspect.signature(fn).parameters)
-    if not params:
-        eqs = fn()
-    elif params[0] == "kind":
-        eqs = fn(design.platform.kind)
-    else:
-        eqs = fn(design)
-    return tuple(eqs.items()) if isinstance(eqs, Mapping) else tuple(eqs)
-
-
 # key, title, module, what the section covers, builder
 def _analysis_parts():
     return [
@@ -714,7 +697,7 @@ def _drive_part(key, title, mod, design, results, progress) -> Part:
                        r.brake_torque, "N*m", r.name, src),
               Quantity(f"travel:{r.name}", "cable travel (longest - shortest length)", r.travel, r.travel, "m",
                        r.name, src)]
-    eqs = list(_module_equations(mod, design))
+    eqs = list(module_equations(mod, design))
     not_checked = ["Drivetrain: rotor and drum inertia, gear backlash and the motor's thermal limits."]
     if ws is not None and np.any(ws.feasible):
         poses, tensions = ws.poses[ws.feasible], ws.tensions[ws.feasible]
@@ -727,7 +710,7 @@ def _drive_part(key, title, mod, design, results, progress) -> Part:
         summary += [""] + list(st.summary())
         figures.append(("Lowest natural frequency of the platform over the feasible task poses (winches locked)",
                         st.figure(color="frequency")))
-        eqs += _module_equations(stiff_mod, design)
+        eqs += module_equations(stiff_mod, design)
         if np.any(st.valid):
             src = "cablekit.stiffness.stiffness_map"
             k, f, dn = st.min_stiffness[st.valid], st.frequency[st.valid], st.deflection_norm[st.valid]
@@ -744,7 +727,7 @@ def _drive_part(key, title, mod, design, results, progress) -> Part:
         progress("  cable sag")
         sg = cables_mod.sag_map(design, poses=poses, tensions=tensions)
         summary += [""] + list(sg.summary())
-        eqs += _module_equations(cables_mod, design)
+        eqs += module_equations(cables_mod, design)
         if np.any(sg.valid):
             src = "cablekit.cables.sag_map"
             big = float(np.max(np.where(sg.valid, sg.sag, -np.inf)))
@@ -784,7 +767,7 @@ def _workspace_part(key, title, mod, design, results, progress) -> Part:
     if ws.axes is not None:
         figures.append(("Least tension margin on horizontal slices of the task box (negative: infeasible)",
                         ws.figure("slices")))
-    eqs = _module_equations(mod, design) or (
+    eqs = module_equations(mod, design) or (
         ("tension margin", r"s^{*} = \max s \quad\text{such that}\quad W\mathbf{t} + \mathbf{w} = 0,\;"
                            r"t_{min} + s \le t_i \le t_{max} - s"),)
     return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(ws.summary()),
@@ -825,7 +808,7 @@ def _accuracy_part(key, title, mod, design, results, progress) -> Part:
     if res.budget.required_accuracy is None:
         not_checked.append("Accuracy: no required accuracy in the design's [errors] table, so the predicted error "
                            "is shown but not judged.")
-    eqs = _module_equations(mod, design) or _ACCURACY_EQUATIONS
+    eqs = module_equations(mod, design) or _ACCURACY_EQUATIONS
     return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(res.summary()),
                 figures=(("Accuracy map over the task region", res.figure()),), quantities=tuple(q),
                 equations=eqs, not_checked=tuple(not_checked), options={"accuracy": res})
@@ -848,7 +831,7 @@ def _arm_part(key, title, mod, design, results, progress) -> Part:
     return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(r.summary()),
                 figures=(("Arm reach (platform frame, level), coloured by the most loaded servo's use",
                           r.figure(color="servo")),),
-                quantities=tuple(q), equations=_module_equations(mod, design), options={"arm_reach": r})
+                quantities=tuple(q), equations=module_equations(mod, design), options={"arm_reach": r})
 
 
 # ======================================================================================

@@ -1,6 +1,6 @@
 """The equations behind the numbers, rendered from the engine's own LaTeX.
 
-:func:`collect_equations` asks :func:`cablekit.symbolic.latex_equations` for the cable
+:func:`cablekit.equations.collect_equations` asks :func:`cablekit.symbolic.latex_equations` for the cable
 kinematics of the design's platform kind, and every other installed module that offers a
 ``latex_equations`` function (workspace, drive, accuracy, arm, ...) for its own; the
 :class:`EquationsView` widget renders them with MathJax (``ipywidgets.HTMLMath``) and follows
@@ -10,52 +10,15 @@ the shared design (a rigid design shows the rigid-platform equations).
 from __future__ import annotations
 
 import html
-import inspect
-from importlib import import_module
 
 import ipywidgets as W
+
+from ..equations import EQUATION_MODULES, collect_equations
 
 from .state import DesignState
 from .style import MUTED
 
 __all__ = ["EQUATION_MODULES", "collect_equations", "EquationsView"]
-
-# modules that may provide latex_equations(); missing ones are skipped
-EQUATION_MODULES = ("symbolic", "tension", "workspace", "cables", "stiffness", "drive", "accuracy", "arm",
-                    "tooltip", "task")
-
-
-def _call(fn, design):
-    """``latex_equations()``, ``latex_equations(kind)`` or ``latex_equations(design)``."""
-    params = list(inspect.signature(fn).parameters)
-    if not params:
-        out = fn()
-    elif params[0] == "kind":
-        out = fn(design.platform.kind)
-    else:
-        out = fn(design)
-    return list(out.items()) if isinstance(out, dict) else list(out)
-
-
-def collect_equations(design, modules=EQUATION_MODULES) -> list[tuple[str, list[tuple[str, str]]]]:
-    """``[(module title, [(equation name, latex), ...]), ...]`` from every installed module
-    for ``design`` (a rigid design gets the rigid-platform equations)."""
-    groups = []
-    for name in modules:
-        try:
-            mod = import_module(f"cablekit.{name}")
-        except ModuleNotFoundError as exc:
-            if exc.name == f"cablekit.{name}":
-                continue
-            raise
-        fn = getattr(mod, "latex_equations", None)
-        if fn is None:
-            continue
-        eqs = _call(fn, design)
-        if eqs:
-            groups.append((f"cablekit.{name}", eqs))
-    return groups
-
 
 class EquationsView(W.VBox):
     """Rendered equations of the modules named in ``modules`` for the shared design."""
