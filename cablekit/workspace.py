@@ -150,10 +150,19 @@ def segment_hits_box(p, q, lower, upper) -> np.ndarray:
     """True where segment ``p-q`` meets the closed axis-aligned box [lower, upper] (slab test).
 
     ``p``, ``q`` (..., 3) [m]; ``lower``, ``upper`` (3,) or broadcastable (..., 3) [m]
-    (Ericson 2005, sec. 5.3.3).
+    (Ericson 2005, sec. 5.3.3).  Segments whose bounding box misses the box are rejected
+    first (cheap), the slab test runs only on the rest.
     """
-    p, q = np.asarray(p, float), np.asarray(q, float)
-    lo, hi = np.asarray(lower, float), np.asarray(upper, float)
+    p, q, lo, hi = np.broadcast_arrays(np.asarray(p, float), np.asarray(q, float), np.asarray(lower, float),
+                                       np.asarray(upper, float))
+    cand = np.all((np.minimum(p, q) <= hi) & (np.maximum(p, q) >= lo), axis=-1)
+    out = np.zeros(cand.shape, bool)
+    if np.any(cand):
+        out[cand] = _slab_test(p[cand], q[cand], lo[cand], hi[cand])
+    return out
+
+
+def _slab_test(p, q, lo, hi) -> np.ndarray:
     d = q - p
     small = np.abs(d) < 1e-15
     dd = np.where(small, 1.0, d)
