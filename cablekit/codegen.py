@@ -164,7 +164,10 @@ def generate(name: str, exprs: Sequence[sp.Expr], args: Sequence[sp.Symbol], *,
     doc : str
         Summary placed in the generated docstring.
     """
-    exprs = [sp.sympify(e) for e in exprs]  # expressions built in code, never user text
+    if any(isinstance(e, str) for e in exprs):
+        raise TypeError(f"{name}: expressions must be SymPy objects or numbers, never text")
+    exprs = [e if isinstance(e, sp.Basic) else sp.Float(e) if isinstance(e, float) else sp.Integer(e)
+             for e in exprs]
     args = list(args)
     free = set().union(*[e.free_symbols for e in exprs]) if exprs else set()
     missing = free - set(args)

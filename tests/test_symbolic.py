@@ -159,3 +159,11 @@ def test_working_directory_and_sys_path_untouched(tmp_path):
     x = sp.Symbol("x")
     codegen.generate("probe_cwd", [x**2], [x])
     assert os.getcwd() == cwd and sys.path == path
+
+
+def test_generate_refuses_text():
+    x = sp.Symbol("x")
+    with pytest.raises(TypeError, match="never text"):
+        codegen.generate("probe_text", ["x + 1"], [x])
+    f = codegen.generate("probe_const", [x, 2], [x])  # plain numbers are fine
+    np.testing.assert_allclose(f(np.array([1.0, 3.0])), [[1.0, 2.0], [3.0, 2.0]])
