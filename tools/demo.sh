@@ -34,7 +34,7 @@ if [ "$status" = 3 ] && [ ${#PDF_ARGS[@]} -gt 0 ]; then
   .venv/bin/cablekit review "$DEMO" -o out/review.html || status=$?
 fi
 case "$status" in
-  0) verdict="every check passes" ;;
+  0) verdict="no check fails; warnings, if any, are listed on the sheet" ;;
   4) verdict="the design FAILS at least one check: the sheet lists what fails and why" ;;
   *) echo "demo: the review sheet was not written (cablekit review exited with $status)" >&2
      exit "$status" ;;
