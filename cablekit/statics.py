@@ -143,6 +143,8 @@ class TensionResult:
 def solve_square(W, w_ext, t_min, t_max) -> TensionResult:
     """Exactly determined rigs (m = n): the unique ``t = -W^{-1} w_ext``, batched.
 
+    For 3 x 3 (a point on three cables) Cramer's rule on component arrays, which avoids the
+    fixed per-matrix cost of stacked LAPACK calls; ``numpy.linalg.solve`` otherwise.
     Singular poses get NaN tensions, ``feasible=False`` and margin ``-inf``.
     """
     W = np.asarray(W, float)
@@ -150,19 +152,48 @@ def solve_square(W, w_ext, t_min, t_max) -> TensionResult:
     N, n, m = W.shape
     if m != n:
         raise ValueError(f"solve_square needs as many cables as DOF, got m={m}, n={n}")
-    t = np.full((N, m), np.nan)
-    det = np.linalg.det(W)
-    scale = np.prod(np.linalg.norm(W, axis=1), axis=1)
-    ok = np.abs(det) > 1e-12 * np.maximum(scale, 1e-300)
-    if np.any(ok):
-        t[ok] = np.linalg.solve(W[ok], -w[ok][..., None])[..., 0]
+    if n == 3:
+        t, ok = _cramer3(W, -w)
+    else:
+        t = np.full((N, m), np.nan)
+        det = np.linalg.det(W)
+        scale = np.prod(np.linalg.norm(W, axis=1), axis=1)
+        ok = np.abs(det) > 1e-12 * np.maximum(scale, 1e-300)
+        if np.any(ok):
+            t[ok] = np.linalg.solve(W[ok], -w[ok][..., None])[..., 0]
     lo = t - np.asarray(t_min, float)
     hi = np.asarray(t_max, float) - t
-    slack = np.minimum(lo, hi)
-    margin = np.where(ok, np.min(np.where(np.isnan(slack), -np.inf, slack), axis=1), -np.inf)
-    limiting = np.where(ok, np.argmin(np.where(np.isnan(slack), -np.inf, slack), axis=1), -1)
+    slack = np.where(np.isnan(t), -np.inf, np.minimum(lo, hi))
+    margin = np.where(ok, np.min(slack, axis=1), -np.inf)
+    limiting = np.where(ok, np.argmin(slack, axis=1), -1)
     return TensionResult(tensions=t, feasible=margin >= 0, margin=margin, limiting_cable=limiting,
                          method="unique solution (m = n)")
+
+
+def _cramer3(W, f):
+    """Solve ``W t = f`` for stacked 3 x 3 ``W`` (N, 3, 3) by Cramer's rule.
+
+    Returns tensions (N, 3) (NaN where singular) and the non-singular mask. The columns' cross
+    products give both the determinant and the adjugate rows:
+    ``t_1 = f . (c_2 x c_3) / det``, ``t_2 = f . (c_3 x c_1) / det``, ``t_3 = f . (c_1 x c_2) / det``.
+    """
+    c1x, c1y, c1z = W[:, 0, 0], W[:, 1, 0], W[:, 2, 0]
+    c2x, c2y, c2z = W[:, 0, 1], W[:, 1, 1], W[:, 2, 1]
+    c3x, c3y, c3z = W[:, 0, 2], W[:, 1, 2], W[:, 2, 2]
+    fx, fy, fz = f[:, 0], f[:, 1], f[:, 2]
+    ax, ay, az = c2y * c3z - c2z * c3y, c2z * c3x - c2x * c3z, c2x * c3y - c2y * c3x  # c2 x c3
+    bx, by, bz = c3y * c1z - c3z * c1y, c3z * c1x - c3x * c1z, c3x * c1y - c3y * c1x  # c3 x c1
+    cx, cy, cz = c1y * c2z - c1z * c2y, c1z * c2x - c1x * c2z, c1x * c2y - c1y * c2x  # c1 x c2
+    det = c1x * ax + c1y * ay + c1z * az
+    scale = (np.sqrt(c1x**2 + c1y**2 + c1z**2) * np.sqrt(c2x**2 + c2y**2 + c2z**2)
+             * np.sqrt(c3x**2 + c3y**2 + c3z**2))
+    ok = np.abs(det) > 1e-12 * np.maximum(scale, 1e-300)
+    inv = np.where(ok, 1.0 / np.where(ok, det, 1.0), np.nan)
+    t = np.empty((W.shape[0], 3))
+    t[:, 0] = (fx * ax + fy * ay + fz * az) * inv
+    t[:, 1] = (fx * bx + fy * by + fz * bz) * inv
+    t[:, 2] = (fx * cx + fy * cy + fz * cz) * inv
+    return t, ok
 
 
 def solve_lp(W, w_ext, t_min, t_max) -> TensionResult:

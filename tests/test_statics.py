@@ -154,3 +154,19 @@ def test_gravity_moment_for_rigid_platform(sander8):
     q[0, 3] = 0.2  # roll: the lowered centre of mass swings sideways and makes a moment about x
     w = external_wrench(sander8, q)[0]
     assert abs(w[3]) > 0.01
+
+
+def test_cramer_path_matches_lapack_solve(greenhouse):
+    # the 3 x 3 closed form against numpy.linalg.solve (LAPACK gesv) on random matrices,
+    # including near-singular ones (tolerance scaled by the condition number)
+    from cablekit.statics import _cramer3
+
+    W = RNG.normal(size=(5000, 3, 3))
+    W[:10, :, 2] = W[:10, :, 0] + 1e-15 * RNG.normal(size=(10, 3))  # singular to working precision
+    f = RNG.normal(size=(5000, 3))
+    t, ok = _cramer3(W, f)
+    assert not ok[:10].any() and np.isnan(t[:10]).all()
+    ref = np.linalg.solve(W[ok], f[ok][..., None])[..., 0]
+    cond = np.linalg.cond(W[ok])
+    err = np.max(np.abs(t[ok] - ref), axis=1) / np.maximum(np.max(np.abs(ref), axis=1), 1e-300)
+    assert np.all(err <= 1e-13 * cond)
