@@ -268,8 +268,7 @@ def test_failing_checks_show_fail_and_the_reason(greenhouse, sheet, fake_provide
 
 def test_a_real_design_that_fails_a_check(greenhouse):
     """A payload far beyond what the winch motors hold fails at least one library check."""
-    if not run_all(greenhouse):
-        pytest.skip("no module that owns checks is installed yet")
+    assert run_all(greenhouse), "no module that owns checks answered: the check providers are broken"
     heavy = greenhouse.with_changes(payload=replace(greenhouse.payload, mass=25.0))
     s = build_review(heavy, date=DATE)
     assert s.status == FAIL and s.failures
