@@ -153,7 +153,11 @@ def test_gravity_moment_for_rigid_platform(sander8):
     np.testing.assert_allclose(w[3:], 0.0, atol=1e-12)
     q[0, 3] = 0.2  # roll: the lowered centre of mass swings sideways and makes a moment about x
     w = external_wrench(sander8, q)[0]
-    assert abs(w[3]) > 0.01
+    # by hand (moment = r x F): combined centre of mass at z_c = (8 * -0.02 + 2 * -0.05) / 10 m
+    # = -0.026 m; rolled by phi it sits at y = -z_c sin(phi), so M_x = y * (-M g), M_y = M_z = 0
+    zc = (8 * -0.02 + 2 * -0.05) / 10
+    assert M == pytest.approx(10.0)
+    np.testing.assert_allclose(w[3:], [-zc * np.sin(0.2) * -M * sander8.frame.g, 0.0, 0.0], rtol=1e-12, atol=1e-12)
 
 
 def test_cramer_path_matches_lapack_solve(greenhouse):
