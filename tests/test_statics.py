@@ -72,7 +72,8 @@ def test_taut_exactly_inside_the_anchor_triangle():
     # A point hanging on three cables from anchors at one height is in equilibrium with all
     # cables taut exactly when its horizontal position lies inside the anchor triangle, i.e.
     # all its barycentric coordinates are positive (the tensions are proportional to them
-    # times l_i / h). Known property of suspended three-cable robots.
+    # times l_i / h). Riechel and Ebert-Uphoff, "Force-feasible workspace analysis for
+    # underconstrained, point-mass cable robots", ICRA 2004 (from memory); derived above by hand.
     d = _equilateral_rig()
     a = d.exits[:, :2]
     n = 4000
