@@ -111,7 +111,7 @@ def ernst_modulus(modulus, weight, horizontal_span, tension):
     modulus : float or array_like
         E [Pa] or EA [N].
     weight : float or array_like
-        Specific weight [N/m**3] or weight per metre [N/m].
+        Specific weight [N/m**3] or weight per metre [N/m]; finite and >= 0.
     horizontal_span : float or array_like
         Horizontal projection l of the cable chord [m].
     tension : float or array_like
@@ -121,6 +121,11 @@ def ernst_modulus(modulus, weight, horizontal_span, tension):
     -------
     numpy.ndarray or float
         Equivalent modulus, same unit as ``modulus``.
+
+    Raises
+    ------
+    ValueError
+        If an input is not finite, or modulus, tension or weight is out of range.
 
     Notes
     -----
@@ -139,6 +144,10 @@ def ernst_modulus(modulus, weight, horizontal_span, tension):
     t = _positive("tension", tension)
     w = np.asarray(weight, float)
     l = np.asarray(horizontal_span, float)
+    if not np.all(np.isfinite(w)) or np.any(w < 0.0):
+        raise ValueError(f"weight must be finite and >= 0, got {weight!r}")
+    if not np.all(np.isfinite(l)):
+        raise ValueError(f"horizontal_span must be finite, got {horizontal_span!r}")
     out = E / (1.0 + (w * l) ** 2 * E / (12.0 * t ** 3))
     return float(out) if out.ndim == 0 else out
 

@@ -159,6 +159,10 @@ def test_ernst_modulus_form_and_inputs():
     assert ernst_modulus(1e5, 1.0, 10.0, T) == pytest.approx(0.5e5, rel=1e-12)
     with pytest.raises(ValueError, match="tension"):
         ernst_modulus(1e5, 1.0, 10.0, 0.0)
+    # a NaN or negative weight, or a NaN span, is an error, not a silent NaN modulus
+    for w, l, name in ((np.nan, 10.0, "weight"), (-1.0, 10.0, "weight"), (1.0, np.nan, "horizontal_span")):
+        with pytest.raises(ValueError, match=name):
+            ernst_modulus(1e5, w, l, 50.0)
 
 
 @pytest.mark.parametrize("kwargs, match", [
