@@ -56,6 +56,8 @@ def test_angles_across_180_degrees_average_correctly():
     rows = "".join(f"P1,{k + 1},0,0,0,0,0,0,0,0,180,0,0,{c}\n" for k, c in enumerate([179.9, -179.9]))
     res = pose_characteristics(read_measurements(_csv(head + rows)))
     assert abs(res.ap_abc[0, 2]) < 1e-9  # mean of 179.9 and -179.9 is 180, not 0
+    # ISO 9283:1998 7.2.2 by hand: deviations +/-0.1 deg from the mean 180 deg, n = 2,
+    # S_c = sqrt((0.1^2 + 0.1^2) / (2 - 1)), RP_c = 3 S_c
     assert math.degrees(res.rp_abc[0, 2]) == pytest.approx(3 * math.sqrt(2 * 0.1**2), rel=1e-9)
 
 
@@ -64,6 +66,7 @@ def test_rows_group_by_commanded_position_without_labels():
             "1,1,1,1.001,1,1\n2,2,2,2,2,2.002\n1,1,1,1.003,1,1\n2,2,2,2,2,2.004\n")
     res = pose_characteristics(read_measurements(_csv(text)))
     assert res.labels == ("pose 1", "pose 2")
+    # ISO 9283:1998 7.2.1 by hand: pose 1 barycentre x = 1.002 m (AP 2 mm), pose 2 z = 2.003 m (AP 3 mm)
     np.testing.assert_allclose(res.ap, [0.002, 0.003], atol=1e-12)
 
 
