@@ -126,7 +126,8 @@ def test_mass_matrix_of_an_offset_point_mass(sander8):
     np.testing.assert_allclose(M, M.T, atol=1e-12)
     assert np.all(np.linalg.eigvalsh(M) > 0)
     assert M[0, 0] == pytest.approx(sander8.total_mass)
-    # the rotational block about x: I_xx + sum m (y^2 + z^2)
+    # the rotational block about x: I_xx + sum m (y^2 + z^2) (parallel-axis, Huygens-Steiner theorem;
+    # from memory), with the centres of mass at z = -0.02 m (platform) and -0.05 m (payload)
     Ixx = sander8.platform.inertia[0] + sander8.platform.mass * 0.02 ** 2 + sander8.payload.mass * 0.05 ** 2
     assert M[3, 3] == pytest.approx(Ixx)
 
