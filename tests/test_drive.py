@@ -132,9 +132,11 @@ def test_fleet_angle_and_limits_match_their_sources(sander8):
     # the demo's grooved 80 mm drum 1 m away exceeds 2 deg; a 1.5 m distance passes
     res = size_drives(sander8, step=0.4)
     fa = [c for c in res.checks if c.key == "fleet_angle"]
+    assert len(fa) == sander8.m  # one per winch: all() over an empty list would pass
     assert all(c.status == FAIL and c.limit == pytest.approx(2.0) for c in fa)
     smooth = size_drives(_changed(sander8, "winch", grooved=False), step=0.4)
-    assert all(c.limit == pytest.approx(1.5) for c in smooth.checks if c.key == "fleet_angle")
+    fa = [c for c in smooth.checks if c.key == "fleet_angle"]
+    assert len(fa) == sander8.m and all(c.limit == pytest.approx(1.5) for c in fa)
 
 
 def test_d_ratio_limits_follow_the_rope_construction(greenhouse, camera4):
@@ -185,6 +187,7 @@ def test_local_practice_overrides_a_limit(greenhouse):
     doc["practice"] = {"d_ratio_min_7x7": 20, "d_ratio_desired_7x7": 24}
     res = size_drives(design_from_dict(doc), step=0.3)
     dd = [c for c in res.checks if c.key == "drum_d_ratio"]
+    assert len(dd) == greenhouse.m  # one per winch: all() over an empty list would pass
     assert all(c.status == PASS and c.source == "design file [practice]" for c in dd)
 
 
