@@ -346,10 +346,10 @@ class Winch:
     motor_rated_torque: float
     motor_peak_torque: float
     motor_rated_speed: float
+    dead_wraps: float
     flange_diameter: float = 0.0
     grooved: bool = False
     brake: bool = False
-    dead_wraps: float = 3.0
 
     @property
     def counts_per_motor_rev(self) -> int:
@@ -663,7 +663,7 @@ def _parse_one_winch(c: _Collector, t: Mapping, p: str) -> Winch | None:
     sp = c.quantity(t, "motor_rated_speed", "angular_speed", p, positive=True)
     gro = c.boolean(t, "grooved", p, default=False)
     brk = c.boolean(t, "brake", p, default=False)
-    dwr = c.number(t, "dead_wraps", p, required=False, default=3.0, minimum=0.0)
+    dwr = c.number(t, "dead_wraps", p, minimum=0.0)  # no default: a design choice, asked for explicitly
     if tr is not None and tp is not None and tp < tr:
         c.add(f"{p}.motor_peak_torque", t.get("motor_peak_torque"), "must not be below the rated torque")
     if dd is not None and fd not in (None, 0.0) and fd <= dd:

@@ -13,7 +13,7 @@ import tomllib
 
 import pytest
 import tomli_w
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from cablekit.cli import main
@@ -123,8 +123,7 @@ def _dump(doc) -> str:
 def test_mutated_designs_give_a_validation_list_and_exit_3(base, mutations, tmp_path_factory):
     doc = copy.deepcopy(BASES[base])
     applied = sum(_apply(doc, m) for m in mutations)
-    if not applied:
-        return
+    assume(applied)  # every mutation missed its target (e.g. a [winch] key on a [[winches]] design)
     path = tmp_path_factory.getbasetemp() / "fuzz.toml"
     path.write_text(_dump(doc))
     out, err = io.StringIO(), io.StringIO()
