@@ -106,3 +106,18 @@ def test_console_command_exit_codes(tmp_path):
     assert r.returncode == 2
     r = _cablekit("check", str(EXAMPLES / "workshop_camera_4cable.toml"))
     assert r.returncode == 0, r.stderr
+
+
+def test_cache_command_lists_and_clears(tmp_path, monkeypatch, capsys):
+    import sympy as sp
+
+    from cablekit import codegen
+
+    monkeypatch.setenv("CABLEKIT_CACHE_DIR", str(tmp_path))
+    x = sp.Symbol("x")
+    codegen.generate("probe_cache_cli", [x + 3], [x])
+    assert main(["cache"]) == 0
+    assert f"{tmp_path} (1 modules" in capsys.readouterr().out
+    assert main(["cache", "--clear"]) == 0
+    assert "removed 1 modules" in capsys.readouterr().out
+    assert not list(tmp_path.glob("ck_*.py"))

@@ -2,4 +2,4 @@
 
 # the order in ``cablekit --help``; commands not listed come after, alphabetically
 ORDER = ["new", "check", "points", "workspace", "drive", "accuracy", "iso9283", "calibrate", "task",
-         "review", "serve"]
+         "review", "serve", "cache"]
