@@ -42,6 +42,7 @@ count_rate_limit = "1 MHz"
 motor_rated_torque = "10 N*m"
 motor_peak_torque = "10 N*m"
 motor_rated_speed = "3000 rpm"
+dead_wraps = 3
 [payload]
 mass = "0 kg"
 [task]
