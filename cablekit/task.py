@@ -41,6 +41,7 @@ from .practice import practice_value
 from .statics import TensionResult, tension_limits
 from .tables import Column, TableError, read_table, write_table
 from .tooltip import arm_world_polyline, design_arm, platform_rotations, solve_platform, tip_tensions
+from .workspace import segment_hits_box
 
 __all__ = [
     "CAUTION",
@@ -147,34 +148,13 @@ def segments_hit_boxes(p0, p1, lower, upper, *, clearance: float = 0.0, tol: flo
 
     Boxes grow by ``clearance`` [m]; a segment that only touches a face (within ``tol``) does
     not count, so a tool set down on a bench top is not a collision.  Uses
-    :func:`cablekit.workspace.segment_hits_box` when installed, else the same slab test here
-    (Kay and Kajiya, "Ray tracing complex scenes", SIGGRAPH 1986).
+    :func:`cablekit.workspace.segment_hits_box`, the slab test shared with the workspace map.
     """
     lo = np.asarray(lower, float) - clearance + tol
     hi = np.asarray(upper, float) + clearance - tol
     p0 = np.asarray(p0, float)[..., None, :]
     p1 = np.asarray(p1, float)[..., None, :]
-    return _segment_hits_box()(p0, p1, lo, hi)
-
-
-def _segment_hits_box():
-    try:
-        from .workspace import segment_hits_box  # the shared helper of the workspace map
-    except ImportError:
-        return _slab_test
-    return segment_hits_box
-
-
-def _slab_test(p, q, lo, hi) -> np.ndarray:
-    """Segment ``p-q`` meets the closed box [lo, hi]: it enters every slab before leaving any."""
-    d = q - p
-    flat = np.abs(d) < 1e-15
-    dd = np.where(flat, 1.0, d)
-    t1, t2 = (lo - p) / dd, (hi - p) / dd
-    inside = (p >= lo) & (p <= hi)
-    t_lo = np.where(flat, np.where(inside, -np.inf, np.inf), np.minimum(t1, t2))
-    t_hi = np.where(flat, np.where(inside, np.inf, -np.inf), np.maximum(t1, t2))
-    return np.maximum(np.max(t_lo, axis=-1), 0.0) <= np.minimum(np.min(t_hi, axis=-1), 1.0)
+    return segment_hits_box(p0, p1, lo, hi)
 
 
 def trapezoid_time(distance, speed: float, acceleration: float = 0.0):
@@ -508,7 +488,7 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
     return TaskReport(design=design, targets=targets, platform_poses=poses[last], joints=q[last], lengths=L[last],
                       counts=counts, tensions=ten.tensions[last], margin=ten.margin[last], servo_use=use[last],
                       steps=tuple(steps), sample_tips=tips, sample_platform=poses[:, :3],
-                      interference_method=f"segment vs box ({_segment_hits_box().__module__})")
+                      interference_method="segment vs box (cablekit.workspace)")
 
 
 def _tension_reason(res: TensionResult, n: int, lim, names) -> str:

@@ -126,13 +126,8 @@ def test_interference_with_the_bench(greenhouse):
     assert f.where == pytest.approx(2 / 3, abs=0.04)
 
 
-@pytest.mark.parametrize("helper", ["installed", "local fallback"])
-def test_segments_against_boxes_by_dense_sampling(helper, monkeypatch):
+def test_segments_against_boxes_by_dense_sampling():
     # reference: points sampled densely along each segment, tested inside the box directly
-    import cablekit.task as task_module
-
-    if helper == "local fallback":
-        monkeypatch.setattr(task_module, "_segment_hits_box", lambda: task_module._slab_test)
     rng = np.random.default_rng(3)
     lo = np.array([[0.0, 0.0, 0.0], [0.5, -0.2, 0.1]])
     hi = np.array([[0.4, 0.3, 0.2], [0.9, 0.3, 0.6]])
