@@ -25,8 +25,8 @@ from typing import Mapping
 import numpy as np
 
 from .arm import LEVEL_TOLERANCE, Arm, arm_points, as_joints, forward_kinematics, levelling_angles, mass_list, mount_rotation
-from .kinematics import as_poses
-from .statics import TensionResult, external_wrench, rotation_matrices, tensions_at
+from .kinematics import as_poses, structure_matrix
+from .statics import TensionResult, rotation_matrices, solve_tensions, tension_limits, tensions_at
 
 __all__ = [
     "design_arm",
@@ -321,12 +321,13 @@ def load_wrench(design, platform_poses, joints, *, holding) -> np.ndarray:
 def tip_tensions(design, platform_poses, joints, *, holding, method: str = "auto") -> TensionResult:
     """Cable tensions with the arm at its actual pose (see :func:`load_wrench`).
 
-    Goes through :func:`cablekit.statics.tensions_at` (and so through the fast exact solver
-    when installed), passing the difference to the design-level wrench as ``extra``.
+    Solves with :func:`cablekit.statics.solve_tensions` (the fast exact solver) for the arm's
+    actual load wrench instead of the design-level lumped one.
     """
     q = as_poses(design, platform_poses)
-    extra = load_wrench(design, q, joints, holding=holding) - external_wrench(design, q)
-    return tensions_at(design, q, extra=extra, method=method)
+    lim = tension_limits(design)
+    return solve_tensions(structure_matrix(design, q), load_wrench(design, q, joints, holding=holding), lim.t_min,
+                          lim.t_max, method=method)
 
 
 # --------------------------------------------------------------------------------------
