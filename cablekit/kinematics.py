@@ -267,6 +267,11 @@ _ORIENTATION_SEEDS = [np.array(v) for v in ([0.3, 0, 0], [-0.3, 0, 0], [0, 0.3, 
                                             [0, 0, -0.3], [0.3, 0.3, 0.3], [-0.3, -0.3, -0.3])]
 
 
+def _rows(geometry, idx):
+    """Per-pose exit/attachment arrays (N, m, 3) restricted to rows ``idx``; shared ones (m, 3) as they are."""
+    return geometry[idx] if geometry.ndim == 3 else geometry
+
+
 def _levenberg_marquardt(design, L, q, a, b, tol, max_iter):
     """Vectorised Levenberg-Marquardt on ``L(q) = L_given`` (one damping factor per pose).
 
@@ -275,14 +280,7 @@ def _levenberg_marquardt(design, L, q, a, b, tol, max_iter):
     """
     N, n = q.shape
     q = q.copy()
-
-    def resid(idx, qq):
-        ai = a[idx] if a.ndim == 3 else a
-        bi = b[idx] if b.ndim == 3 else b
-        return cable_lengths(design, qq, exits=ai, attachments=bi) - L[idx], ai, bi
-
-    allidx = np.arange(N)
-    r, _, _ = resid(allidx, q)
+    r = cable_lengths(design, q, exits=a, attachments=b) - L
     cost = np.sum(r**2, axis=1)
     lam = np.full(N, 1e-3)
     active = np.ones(N, bool)
@@ -292,8 +290,7 @@ def _levenberg_marquardt(design, L, q, a, b, tol, max_iter):
         idx = np.flatnonzero(active)
         if idx.size == 0:
             break
-        ai = a[idx] if a.ndim == 3 else a
-        bi = b[idx] if b.ndim == 3 else b
+        ai, bi = _rows(a, idx), _rows(b, idx)
         J = length_jacobian(design, q[idx], exits=ai, attachments=bi)
         JT = np.swapaxes(J, 1, 2)
         H = JT @ J
@@ -302,7 +299,7 @@ def _levenberg_marquardt(design, L, q, a, b, tol, max_iter):
         A = H + (lam[idx][:, None] * np.maximum(diag, 1e-12))[:, :, None] * eye
         dq = -np.linalg.solve(A, g[..., None])[..., 0]
         qn = q[idx] + dq
-        rn, _, _ = resid(idx, qn)
+        rn = cable_lengths(design, qn, exits=ai, attachments=bi) - L[idx]
         cn = np.sum(rn**2, axis=1)
         better = cn < cost[idx]
         ib = idx[better]
@@ -365,9 +362,7 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
                 break
             start = q0[bad].copy()
             start[:, 3:] = seed
-            ai = a[bad] if a.ndim == 3 else a
-            bi = b[bad] if b.ndim == 3 else b
-            qs, rs, st, _ = _levenberg_marquardt(design, L[bad], start, ai, bi, tol, max_iter)
+            qs, rs, st, _ = _levenberg_marquardt(design, L[bad], start, _rows(a, bad), _rows(b, bad), tol, max_iter)
             better = rs < residual[bad]
             q[bad[better]] = qs[better]
             residual[bad[better]] = rs[better]
