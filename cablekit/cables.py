@@ -178,6 +178,13 @@ def _positive(name, value):
     return arr
 
 
+def _nonnegative(name, value, unit=""):
+    arr = np.asarray(value, dtype=float)
+    if not np.all(np.isfinite(arr)) or np.any(arr < 0.0):
+        raise ValueError(f"{name} must be finite and >= 0 {unit}".rstrip() + f", got {value!r}")
+    return arr
+
+
 def _asinhc(x):
     """``asinh(x) / x`` with the limit 1 at x = 0."""
     x = np.asarray(x, float)
@@ -395,9 +402,7 @@ def catenary_forces(platform_points, exit_points, unstretched_length, axial_stif
     """
     _positive("unstretched_length", unstretched_length)
     _positive("axial_stiffness", axial_stiffness)
-    w_arr = np.asarray(weight_per_length, float)
-    if not np.all(np.isfinite(w_arr)) or np.any(w_arr < 0):
-        raise ValueError(f"weight_per_length must be finite and >= 0 [N/m], got {weight_per_length!r}")
+    _nonnegative("weight_per_length", weight_per_length, "[N/m]")
     shape, l, h, chord, eh, up, vertical, (L0, EA, w) = _flatten_inputs(
         platform_points, exit_points, gravity_direction, unstretched_length, axial_stiffness, weight_per_length)
     n = l.size
@@ -468,9 +473,7 @@ def unstretched_length_for_tension(platform_points, exit_points, tension, axial_
         raise ValueError(f"at must be 'platform' or 'exit', got {at!r}")
     _positive("tension", tension)
     _positive("axial_stiffness", axial_stiffness)
-    w_arr = np.asarray(weight_per_length, float)
-    if not np.all(np.isfinite(w_arr)) or np.any(w_arr < 0):
-        raise ValueError(f"weight_per_length must be finite and >= 0 [N/m], got {weight_per_length!r}")
+    _nonnegative("weight_per_length", weight_per_length, "[N/m]")
     shape, l, h, chord, eh, up, vertical, (T, EA, w) = _flatten_inputs(
         platform_points, exit_points, gravity_direction, tension, axial_stiffness, weight_per_length)
     n = l.size
