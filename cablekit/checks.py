@@ -6,6 +6,11 @@ margin, a status and the source of the limit (a standard and clause, a handbook 
 ``design_checks(design) -> list[Check]`` and are listed in :data:`CHECK_PROVIDERS`;
 :func:`run_all` calls each one that is installed, so the command line, the widgets and the
 review sheet always show the same list.
+
+A provider module may also expose ``design_assumptions(design, **options) -> list[str]``:
+the modelling assumptions its verdicts rest on for this design (one sentence each, e.g. "the
+platform is a point: its attachments coincide, so it is taken to stay level").
+:func:`run_assumptions` gathers them and the review sheet prints every one.
 """
 
 from __future__ import annotations
@@ -14,7 +19,8 @@ import math
 from dataclasses import dataclass
 from importlib import import_module
 
-__all__ = ["PASS", "WARN", "FAIL", "Check", "judge", "CHECK_PROVIDERS", "run_all", "worst_status"]
+__all__ = ["PASS", "WARN", "FAIL", "Check", "judge", "CHECK_PROVIDERS", "run_all", "run_assumptions",
+           "worst_status"]
 
 PASS, WARN, FAIL = "pass", "warn", "fail"
 _ORDER = {PASS: 0, WARN: 1, FAIL: 2}
@@ -83,15 +89,8 @@ CHECK_PROVIDERS: list[str] = [
 ]
 
 
-def run_all(design, **options) -> list[Check]:
-    """Every check of every installed provider, in provider order.
-
-    ``options`` are passed to providers that accept them (e.g. ``workspace=`` a precomputed
-    workspace result) so the sheet and the widgets do not compute the same map twice.
-    """
-    import inspect
-
-    out: list[Check] = []
+def _provider_modules():
+    """(module, function name) of each installed provider, in order."""
     for target in CHECK_PROVIDERS:
         mod_name, func_name = target.split(":")
         try:
@@ -100,10 +99,37 @@ def run_all(design, **options) -> list[Check]:
             if exc.name == mod_name:
                 continue
             raise
+        yield mod, func_name
+
+
+def _call(fn, design, options):
+    import inspect
+
+    params = inspect.signature(fn).parameters
+    return fn(design, **{k: v for k, v in options.items() if k in params})
+
+
+def run_all(design, **options) -> list[Check]:
+    """Every check of every installed provider, in provider order.
+
+    ``options`` are passed to providers that accept them (e.g. ``workspace=`` a precomputed
+    workspace result) so the sheet and the widgets do not compute the same map twice.
+    """
+    out: list[Check] = []
+    for mod, func_name in _provider_modules():
         fn = getattr(mod, func_name, None)
-        if fn is None:
-            continue
-        params = inspect.signature(fn).parameters
-        kwargs = {k: v for k, v in options.items() if k in params}
-        out.extend(fn(design, **kwargs))
+        if fn is not None:
+            out.extend(_call(fn, design, options))
+    return out
+
+
+def run_assumptions(design, **options) -> list[str]:
+    """Every modelling assumption the providers' verdicts rest on for ``design``, in provider
+    order, without repeats (see the module docstring); ``options`` as for :func:`run_all`."""
+    out: list[str] = []
+    for mod, _ in _provider_modules():
+        fn = getattr(mod, "design_assumptions", None)
+        for text in (_call(fn, design, options) if fn is not None else ()):
+            if text not in out:
+                out.append(text)
     return out

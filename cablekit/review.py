@@ -37,7 +37,7 @@ from typing import Any, Callable, Mapping
 import numpy as np
 
 from . import __version__
-from .checks import FAIL, PASS, WARN, Check, run_all, worst_status
+from .checks import FAIL, PASS, WARN, Check, run_all, run_assumptions, worst_status
 from .design import atomic_write_text, content_hash
 from .equations import module_equations
 
@@ -1343,7 +1343,11 @@ def _render_assumptions(design, parts) -> str:
     from .commands.check import summary_lines
 
     _, warnings = summary_lines(design)
+    own = run_assumptions(design, **{k: v for p in parts if p.available for k, v in p.options.items()})
     out = ["<h3>Assumptions</h3><ul>" + "".join(f"<li>{_h(a)}</li>" for a in ASSUMPTIONS) + "</ul>"]
+    if own:
+        out.append("<h3>Assumptions the verdicts on this design rest on</h3><ul>"
+                   + "".join(f"<li>{_h(a)}</li>" for a in own) + "</ul>")
     missing = [p for p in parts if not p.available]
     notes = [n for p in parts if p.available for n in p.not_checked]
     out.append("<h3>Not checked</h3><ul>")

@@ -524,3 +524,19 @@ def test_cli_pdf_without_renderer_gives_exit_3_and_writes_nothing(tmp_path, caps
     assert main(["review", str(GREENHOUSE), "-o", str(out), "--pdf", str(tmp_path / "r.pdf")]) == EXIT_INVALID
     assert "apt-get install chromium" in capsys.readouterr().err
     assert not list(tmp_path.iterdir())
+
+
+def test_provider_assumptions_are_printed_once_on_the_sheet(monkeypatch, greenhouse):
+    # every modelling assumption a verdict rests on must reach the sheet (a verdict without its
+    # assumptions is a false pass waiting to happen); repeats across providers are printed once
+    text = "the fake platform is taken to stay level (attachments coincide)"
+    mod = types.ModuleType("ck_fake_assumer")
+    mod.design_checks = lambda design, **options: []
+    mod.design_assumptions = lambda design, **options: [text, text]
+    monkeypatch.setitem(sys.modules, "ck_fake_assumer", mod)
+    monkeypatch.setattr(checks_mod, "CHECK_PROVIDERS", ["ck_fake_assumer:design_checks"])
+    monkeypatch.setattr(review, "_analysis_parts", lambda: [])
+    assert checks_mod.run_assumptions(greenhouse) == [text]
+    doc = build_review(greenhouse, date=DATE).html
+    assert doc.count(review._h(text)) == 1
+    assert "Assumptions the verdicts on this design rest on" in doc
