@@ -383,6 +383,10 @@ class Task:
     speed: float = 0.0
     acceleration: float = 0.0
     wrench_box: tuple[float, ...] = (0.0,) * 6  # +/- half-widths [N, N, N, N*m, N*m, N*m]
+    # a range of roll, pitch, yaw [rad] as ((lo, hi), (lo, hi), (lo, hi)), sampled on a grid of
+    # orientation_samples values per angle (both bounds included); see cablekit.region.task_orientations
+    orientation_range: tuple[tuple[float, float], ...] | None = None
+    orientation_samples: int = 3
 
 
 @dataclass(frozen=True)
@@ -725,7 +729,7 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
     if t is None:
         return None
     c.unknown(t, {"box_lower", "box_upper", "points", "orientations", "step", "speed", "acceleration",
-                  "wrench_box"}, "task")
+                  "wrench_box", "orientation_range", "orientation_samples"}, "task")
     lo = c.vector(t, "box_lower", "length", "task", required=False)
     hi = c.vector(t, "box_upper", "length", "task", required=False)
     ok = True
@@ -766,6 +770,8 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
     if kind == "point" and "orientations" in t:
         c.add("task.orientations", t["orientations"], "a point platform has no orientation; remove it")
         ok = False
+    o_range, o_samples, range_ok = _parse_orientation_range(c, t, kind)
+    ok &= range_ok
     step = c.quantity(t, "step", "length", "task", required=False, positive=True, default=0.05)
     speed = c.quantity(t, "speed", "speed", "task", required=False, nonnegative=True, default=0.0)
     acc = c.quantity(t, "acceleration", "acceleration", "task", required=False, nonnegative=True, default=0.0)
@@ -789,7 +795,61 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
     if not ok or None in (step, speed, acc) or (("box_lower" in t) and (lo is None or hi is None)):
         return None
     return Task(box_lower=lo, box_upper=hi, points=tuple(pts), orientations=tuple(oris), step=step,
-                speed=speed, acceleration=acc, wrench_box=wb)
+                speed=speed, acceleration=acc, wrench_box=wb, orientation_range=o_range,
+                orientation_samples=o_samples)
+
+
+_ANGLES = ("roll", "pitch", "yaw")
+ORIENTATION_SAMPLES_MAX = 9  # per angle: 9**3 = 729 orientations at most
+
+
+def _parse_orientation_range(c: _Collector, t: Mapping, kind: str | None):
+    """``orientation_range = { roll = "-10, 10 deg", pitch = ..., yaw = ... }`` (an angle left out
+    stays 0) and ``orientation_samples`` (values per angle, both bounds included).
+    Returns (range or None, samples, ok)."""
+    ok = True
+    samples = 3
+    if "orientation_samples" in t:
+        v = t["orientation_samples"]
+        if isinstance(v, bool) or not isinstance(v, int) or not 2 <= v <= ORIENTATION_SAMPLES_MAX:
+            c.add("task.orientation_samples", v, f"a whole number of values per angle, 2..{ORIENTATION_SAMPLES_MAX} "
+                  "(2: the bounds only; 3: the bounds and the middle)")
+            ok = False
+        else:
+            samples = v
+        if "orientation_range" not in t:
+            c.add("task.orientation_samples", v, "only used with task.orientation_range; give the range too")
+            ok = False
+    if "orientation_range" not in t:
+        return None, samples, ok
+    raw = t["orientation_range"]
+    if kind == "point":
+        c.add("task.orientation_range", raw, "a point platform has no orientation; remove it")
+        return None, samples, False
+    if not isinstance(raw, Mapping) or not raw:
+        c.add("task.orientation_range", raw, "a table such as { roll = \"-10, 10 deg\", pitch = \"-10, 10 deg\" }")
+        return None, samples, False
+    c.unknown(raw, set(_ANGLES), "task.orientation_range")
+    out = []
+    for name in _ANGLES:
+        if name not in raw:
+            out.append((0.0, 0.0))
+            continue
+        field_ = f"task.orientation_range.{name}"
+        try:
+            lo, hi = parse_vector(raw[name], "angle", length=2, field=field_)
+        except UnitError as exc:
+            c.add(field_, raw[name], str(exc).split(": ", 1)[-1])
+            ok = False
+            continue
+        if not (math.isfinite(lo) and math.isfinite(hi)) or hi < lo:
+            c.add(field_, raw[name], "two finite angles 'lower, upper' with lower <= upper, such as '-10, 10 deg'")
+            ok = False
+        elif hi - lo > 2 * math.pi:
+            c.add(field_, raw[name], "a range of at most 360 deg")
+            ok = False
+        out.append((lo, hi))
+    return (tuple(out) if ok and len(out) == 3 else None), samples, ok
 
 
 def _parse_home(c: _Collector, doc: Mapping, kind: str | None):
@@ -1048,6 +1108,9 @@ def design_to_dict(d: Design) -> dict:
     task["step"] = _q(t.step, "length")
     task["speed"] = _q(t.speed, "speed")
     task["acceleration"] = _q(t.acceleration, "acceleration")
+    if t.orientation_range is not None:
+        task["orientation_range"] = {n: _v(r, "angle") for n, r in zip(_ANGLES, t.orientation_range) if r != (0.0, 0.0)}
+        task["orientation_samples"] = t.orientation_samples
     if any(t.wrench_box):
         task["wrench_box"] = {"force": _v(t.wrench_box[:3], "force"), "torque": _v(t.wrench_box[3:], "torque")}
     doc["task"] = task

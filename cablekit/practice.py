@@ -69,6 +69,10 @@ PRACTICE: dict[str, PracticeEntry] = {
         PracticeEntry("tension_margin_warn", 0.10, "dimensionless",
                       "share of a cable's tension range below which a feasible pose is flagged 'warn'",
                       "common practice, no source"),
+        PracticeEntry("grid_points_per_axis_min", 10.0, "dimensionless",
+                      "fewest grid points along each axis of the task box before a workspace map may pass "
+                      "(fewer: warn, the grid is too coarse to stand for the region)",
+                      "common practice, no source"),
         PracticeEntry("sag_length_threshold", 0.5e-3, "length",
                       "sag-induced change of effective cable length above which straight-cable results are flagged",
                       "common practice, no source"),

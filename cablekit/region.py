@@ -1,4 +1,12 @@
-"""Sampling the task region: grid poses from the task box, points and orientations."""
+"""Sampling the task region: grid poses from the task box, points and orientations.
+
+Orientations are the task's list plus, when the design states ``task.orientation_range``,
+every combination of ``orientation_samples`` evenly spaced values per angle (both bounds
+included): all corners of the roll-pitch-yaw box and interior samples
+(:func:`task_orientations`).  A sample set is not a proof: the workspace map states its grid
+step and points per axis and checks the moves between neighbouring nodes
+(:mod:`cablekit.workspace`).
+"""
 
 from __future__ import annotations
 
@@ -6,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["TaskGrid", "task_poses", "MAX_POSES"]
+__all__ = ["TaskGrid", "task_poses", "task_orientations", "MAX_POSES"]
 
 MAX_POSES = 20_000_000  # refuse grids that would not fit comfortably in memory
 
@@ -16,7 +24,7 @@ class TaskGrid:
     """Poses sampling the task region.
 
     poses : (N, n) [m, rad]; positions : (P, 3) the distinct positions [m];
-    orientation_index : (N,) which of ``design.task.orientations`` each pose uses (0 for a
+    orientation_index : (N,) which of the orientations (:func:`task_orientations`) each pose uses (0 for a
     point platform); position_index : (N,) row of ``positions``; shape : (nx, ny, nz) of the
     box grid, or ``None`` when only points were sampled; axes : the three grid axes [m] (or
     ``None``); step : grid step [m]; from_box : (P,) True for positions on the box grid.
@@ -30,6 +38,28 @@ class TaskGrid:
     axes: tuple[np.ndarray, np.ndarray, np.ndarray] | None
     step: float
     from_box: np.ndarray
+
+
+def task_orientations(task) -> np.ndarray:
+    """Every orientation the task asks for: the list, then the range grid (K, 3) [rad].
+
+    The range ``((lo, hi), (lo, hi), (lo, hi))`` of roll, pitch, yaw gives
+    ``orientation_samples`` values per angle from ``lo`` to ``hi`` (one value when
+    ``lo == hi``) and takes every combination, so all ``2**k`` bound combinations of the
+    ``k`` varying angles are in the set together with the interior samples.  Repeats are
+    dropped, the order is kept.
+    """
+    oris = [tuple(map(float, o)) for o in task.orientations]
+    rng = getattr(task, "orientation_range", None)
+    if rng is not None:
+        n = int(task.orientation_samples)
+        if n < 2:
+            raise ValueError(f"orientation_samples must be at least 2 (the bounds), got {n}")
+        axes = [np.linspace(lo, hi, n) if hi > lo else np.array([lo]) for lo, hi in rng]
+        grid = np.stack(np.meshgrid(*axes, indexing="ij"), axis=-1).reshape(-1, 3)
+        oris += [tuple(map(float, o)) for o in grid]
+    out = np.array(list(dict.fromkeys(oris)), dtype=float).reshape(-1, 3)
+    return out
 
 
 def _axis(lo: float, hi: float, step: float) -> np.ndarray:
@@ -47,8 +77,8 @@ def task_poses(design, *, step: float | None = None, orientations=None, include_
     ----------
     design : Design
     step : grid step [m]; default ``design.task.step``.
-    orientations : (K, 3) roll, pitch, yaw [rad]; default ``design.task.orientations``
-        (ignored for point platforms).
+    orientations : (K, 3) roll, pitch, yaw [rad]; default :func:`task_orientations`
+        (the list and the range; ignored for point platforms).
     include_points : also sample ``design.task.points``.
 
     Raises
@@ -84,7 +114,7 @@ def task_poses(design, *, step: float | None = None, orientations=None, include_
         poses = positions.copy()
         return TaskGrid(poses=poses, positions=positions, orientation_index=np.zeros(len(poses), int),
                         position_index=np.arange(len(poses)), shape=shape, axes=axes, step=step, from_box=from_box)
-    oris = np.array(task.orientations if orientations is None else orientations, dtype=float).reshape(-1, 3)
+    oris = task_orientations(task) if orientations is None else np.array(orientations, dtype=float).reshape(-1, 3)
     if len(oris) == 0:
         raise ValueError("the orientation set is empty: give at least one roll, pitch, yaw")
     if not np.all(np.isfinite(oris)):

@@ -7,9 +7,51 @@ touching each other, a cable through the platform body, a cable through a declar
 The result, :class:`WorkspaceResult`, carries per-pose verdicts, margins, tensions and reason
 codes, and gives a text summary, plotly figures and a result file.
 
-A pose is **feasible** when its tension margin over the whole wrench box is >= 0
+A pose is **feasible** when its tension margin over the whole load set is >= 0
 (wrench-feasible workspace, Gouttefarde, Merlet and Daney 2007) and no geometric reason
-forbids it.  A **position** is covered when every orientation of the set is feasible there.
+forbids it.  The load set is gravity (+ an extra wrench) plus the task's wrench box plus the
+inertial wrench of every acceleration up to ``task.acceleration`` in any direction (below);
+for redundant rigs the margin is then reduced by the tension spread of length errors (below).
+
+Accelerations
+-------------
+The platform, payload and arm (lumped) accelerating by ``a`` need the cables to supply
+``M a`` more: the load is ``w_g - M_q[:, :3] a`` with ``M_q`` the mass matrix about the
+reference point (:func:`cablekit.stiffness.mass_matrix`: ``m a`` and, for a rigid platform,
+its moment ``m c x a`` through the combined centre of mass).  The ball ``|a| <= a_max`` is
+enclosed in a polytope (:func:`acceleration_polytope`: a geodesic polyhedron of 42 vertices
+whose faces touch the ball, vertices 7.0 % outside it), so the check is conservative.  The
+margin is concave in the load, so its least value over (polytope + wrench box) is at a vertex
+(Bosscher, Riechel and Ebert-Uphoff 2006): every polytope vertex is solved with the wrench box
+around it.  Angular acceleration and velocity are not in the design file and not included.
+
+Length errors on redundant rigs (m > n)
+---------------------------------------
+Length-controlled winches set lengths, not tensions.  An error ``e`` of the cables' unstretched
+lengths (home length, quantisation, deadband: the ``[errors]`` budget) changes the tensions
+through the stiffness model (winches locked, ``k_i = EA / L_i``; Behzadipour and Khajepour
+2006): with ``t_i = k_i (L_i(q) - L0_i)``, ``J = -W^T`` and ``K`` the platform stiffness
+(:func:`cablekit.stiffness.platform_stiffness`, elastic + geometric),
+equilibrium gives ``dx = -K^-1 W K_c e`` and
+
+    dt = -S e,   S = K_c - K_c W^T K^-1 W K_c,   K_c = diag(k)
+
+(a self-stress: ``W dt = 0`` for the elastic part).  The worst case over the error box
+``|e_j| <= delta_j`` is, per cable, exactly ``spread_i = sum_j |S_ij| delta_j`` (a linear
+function's extreme on a box is at a vertex).  The pose margin becomes
+``margin - max_i spread_i`` (conservative).  For m = n, ``S = 0`` to first order: length
+errors move the pose (:mod:`cablekit.accuracy`), not the tensions.
+
+Sampling
+--------
+Tensions are judged at the grid nodes only; the summary states the grid step and points per
+axis, and the ``grid_resolution`` check warns below ``grid_points_per_axis_min``
+(:mod:`cablekit.practice`).  Contact is also checked on the straight moves between
+neighbouring nodes of the box grid (each orientation): cable pairs by bisection with a
+Lipschitz bound (a cable point moves at most as far as the platform, so the gap changes by at
+most ``2 |dp|`` along a move: a span whose end gaps sum to more than that is clear), cables
+against obstacles and the platform body exactly, on the triangle each cable sweeps
+(Akenine-Moller 2001, separating axes).  A **position** is covered when every orientation of the set is feasible there.
 The **static workspace** uses gravity alone as the load (no wrench box, no extra wrench);
 for a suspended rig (every exit above the task region) it is the classic static workspace.
 
@@ -25,6 +67,9 @@ bit  name            meaning
 16   body            a cable passes through the platform body box
 32   obstacle        a cable passes through a declared obstacle box
 64   no_solution     no tensions balance the load at all (singular pose)
+128  length          length errors push a cable out of its window (m > n)
+256  sweep           cables touch, or a cable hits the body or an obstacle, on a
+                     move to a neighbouring grid node
 ===  ==============  ===========================================================
 
 "Best tensions" are the max-margin tensions at the worst wrench of the box; the tension bits
@@ -41,8 +86,11 @@ the names of the :class:`WorkspaceResult` fields (SI units: m, rad, N, N*m):
 ``position_index`` (N,), ``from_box`` (P,), ``axis_x``/``axis_y``/``axis_z`` (empty when
 only points were sampled), ``box_lower``/``box_upper`` (3,) (empty without a box),
 ``exits`` (m, 3), ``feasible``, ``margin``, ``static_feasible``, ``static_margin``,
-``clearance`` (N,), ``tensions`` (N, m), ``limiting_cable`` (N,), ``reasons`` (N,) uint8,
-``t_min``, ``t_max`` (m,), ``wrench_box``, ``extra_wrench`` (n,).
+``clearance`` (N,), ``tensions`` (N, m), ``limiting_cable`` (N,), ``reasons`` (N,) uint16,
+``t_min``, ``t_max`` (m,), ``wrench_box``, ``extra_wrench`` (n,), ``rest_margin`` (N,) (the
+margin without accelerations and length errors), ``length_spread`` (N, m), ``length_error``
+(m,) [m]; ``meta`` also holds ``acceleration`` [m/s**2], the polytope's ``accel_overshoot``
+and the sweep counts.
 
 References
 ----------
@@ -50,6 +98,11 @@ Gouttefarde, M., Merlet, J.-P., Daney, D. "Wrench-feasible workspace of parallel
 mechanisms". IEEE ICRA 2007.
 Ericson, C. *Real-Time Collision Detection*. Morgan Kaufmann, 2005, sec. 5.1.9 (closest
 points of two segments) and sec. 5.3.3 (segment against an axis-aligned box, slab test).
+Akenine-Moller, T. "Fast 3D triangle-box overlap testing". J. Graphics Tools 6(1), 2001.
+Bosscher, P., Riechel, A. T., Ebert-Uphoff, I. "Wrench-feasible workspace generation for
+cable-driven robots". IEEE Trans. Robotics 22(5), 2006.
+Behzadipour, S., Khajepour, A. "Stiffness of cable-based parallel manipulators with
+application to stability analysis". J. Mech. Design 128(1), 2006.
 """
 
 from __future__ import annotations
@@ -68,7 +121,7 @@ from .checks import Check, judge
 from .design import atomic_write_bytes
 from .kinematics import structure_matrix
 from .practice import PRACTICE, practice_value
-from .region import task_poses
+from .region import task_orientations, task_poses
 from .statics import external_wrench, rotation_matrices, tension_limits
 from .tension import distribute
 
@@ -82,10 +135,14 @@ __all__ = [
     "load_workspace",
     "segment_distances",
     "segment_hits_box",
+    "triangle_hits_box",
+    "acceleration_polytope",
+    "length_error_spread",
     "design_checks",
+    "design_assumptions",
 ]
 
-FORMAT = "cablekit-workspace/1"
+FORMAT = "cablekit-workspace/2"
 CHUNK = 8192  # poses per step of the map (progress is reported after each)
 
 # name -> (bit, label); the order is the order of precedence when one reason is shown
@@ -97,6 +154,8 @@ REASONS: dict[str, tuple[int, str]] = {
     "motor": (4, "over the motor limit"),
     "rope": (2, "over the rope limit"),
     "slack": (1, "a cable goes slack"),
+    "length": (128, "length errors push a cable out of its window"),
+    "sweep": (256, "contact on a move between grid nodes"),
 }
 REASON_BITS = {k: v[0] for k, v in REASONS.items()}
 
@@ -110,6 +169,8 @@ COLOURS = {
     "motor": "#e0662b",
     "rope": "#a8232f",
     "slack": "#e8b93b",
+    "length": "#c77dbb",
+    "sweep": "#5a8fd6",
     "exit": "#20262e",
     "box": "#9aa5b1",
 }
@@ -177,6 +238,97 @@ def _slab_test(p, q, lo, hi) -> np.ndarray:
     return np.all(ok_axis, axis=-1) & (t_enter <= t_exit)
 
 
+def triangle_hits_box(v0, v1, v2, lower, upper) -> np.ndarray:
+    """True where triangle ``v0 v1 v2`` meets the closed axis-aligned box [lower, upper].
+
+    ``v0``, ``v1``, ``v2`` (..., 3) [m]; ``lower``, ``upper`` broadcastable (..., 3) [m].
+    Separating-axis test on the 13 axes (3 box normals, the triangle normal, 9 edge x box-axis
+    products; Akenine-Moller 2001).  A degenerate triangle (a segment or a point) works too: its
+    zero axes separate nothing and the remaining ones are the segment's full set.
+    """
+    v0, v1, v2, lo, hi = np.broadcast_arrays(*(np.asarray(v, float) for v in (v0, v1, v2, lower, upper)))
+    c = 0.5 * (lo + hi)
+    h = 0.5 * (hi - lo)
+    a, b, d = v0 - c, v1 - c, v2 - c
+    # box normals: the triangle's bounding box against the box
+    sep = np.any((np.minimum(np.minimum(a, b), d) > h) | (np.maximum(np.maximum(a, b), d) < -h), axis=-1)
+    edges = (b - a, d - b, a - d)
+    axes = [np.cross(edges[0], edges[1])]
+    eye = np.eye(3)
+    for e in edges:
+        axes += [np.cross(e, eye[k]) for k in range(3)]
+    for ax in axes:
+        pa, pb, pd = (np.einsum("...k,...k->...", v, ax) for v in (a, b, d))
+        r = np.einsum("...k,...k->...", h, np.abs(ax))
+        tol = 1e-12 * (np.abs(pa) + np.abs(pb) + np.abs(pd) + r)
+        sep |= (np.minimum(np.minimum(pa, pb), pd) > r + tol) | (np.maximum(np.maximum(pa, pb), pd) < -r - tol)
+    return ~sep
+
+
+def acceleration_polytope(level: int = 1) -> tuple[np.ndarray, float]:
+    """Vertices (k, 3) of a polytope that contains the unit ball, and how far out they reach.
+
+    A geodesic polyhedron (the icosahedron with each face split into ``4**level`` triangles,
+    vertices pushed onto the sphere) scaled so that its nearest face touches the unit sphere:
+    every direction of the ball is inside, the vertices lie ``overshoot`` (> 1) from the centre.
+    ``level=1``: 42 vertices, overshoot 1.0705; ``level=0``: 12 vertices, 1.2584.
+    """
+    from scipy.spatial import ConvexHull
+
+    t = 0.5 * (1.0 + math.sqrt(5.0))
+    v = np.array([(-1, t, 0), (1, t, 0), (-1, -t, 0), (1, -t, 0), (0, -1, t), (0, 1, t), (0, -1, -t), (0, 1, -t),
+                  (t, 0, -1), (t, 0, 1), (-t, 0, -1), (-t, 0, 1)], float)
+    v /= np.linalg.norm(v, axis=1)[:, None]
+    for _ in range(level):
+        faces = ConvexHull(v).simplices
+        mids = {}
+        for f in faces:
+            for i, j in ((f[0], f[1]), (f[1], f[2]), (f[2], f[0])):
+                key = (min(i, j), max(i, j))
+                if key not in mids:
+                    mid = v[i] + v[j]
+                    mids[key] = mid / np.linalg.norm(mid)
+        v = np.vstack([v, np.array(list(mids.values()))])
+    hull = ConvexHull(v)
+    inradius = float(np.min(-hull.equations[:, 3]))  # unit outward normals: n . x + d <= 0 inside
+    return v / inradius, 1.0 / inradius
+
+
+def length_error_spread(design, poses, tensions, errors) -> np.ndarray:
+    """Worst-case tension change of each cable from unstretched-length errors [N], (N, m).
+
+    ``errors`` (m,) or (N, m): half-widths ``delta`` of each cable's length error [m].
+    ``spread_i = sum_j |S_ij| delta_j`` with ``S = K_c - K_c W^T K^-1 W K_c`` (see the module
+    notes; Behzadipour and Khajepour 2006 for ``K``).  Poses whose stiffness is singular or whose
+    tensions are not finite get ``inf``.  For m = n the elastic ``S`` vanishes; this function
+    still returns the (second-order) geometric remainder.
+    """
+    from .stiffness import platform_stiffness
+
+    q = np.asarray(poses, float)
+    t = np.asarray(tensions, float)
+    good = np.all(np.isfinite(t), axis=1)
+    out = np.full(t.shape, np.inf)
+    if not np.any(good):
+        return out
+    q, tg = q[good], t[good]
+    ps = platform_stiffness(design, q, tg)
+    W = structure_matrix(design, q)
+    k = ps.cable_stiffness
+    WK = W * k[:, None, :]  # W K_c (N, n, m)
+    K = ps.total
+    det_ok = np.abs(np.linalg.det(K)) > 0
+    cond_ok = np.linalg.cond(np.where(det_ok[:, None, None], K, np.eye(K.shape[1]))) < 1e12
+    ok = det_ok & cond_ok
+    X = np.linalg.solve(np.where(ok[:, None, None], K, np.eye(K.shape[1])), WK)  # K^-1 W K_c
+    S = k[:, :, None] * np.eye(design.m) - np.swapaxes(WK, 1, 2) @ X
+    delta = np.broadcast_to(np.asarray(errors, float), t.shape)[good]
+    sp = np.einsum("nij,nj->ni", np.abs(S), delta)
+    sp[~ok] = np.inf
+    out[good] = sp
+    return out
+
+
 def _cable_pairs(design) -> list[tuple[int, int]]:
     """Pairs of cables that may touch: those sharing no end point (by design they meet there)."""
     a, b = design.exits, design.attachments
@@ -224,6 +376,113 @@ def _geometry(design, q, pairs):
     return clearance, body, obstacle
 
 
+SWEEP_DEPTH = 14  # bisection levels for a cable pair on one move (2**-14 of the step)
+_SWEEP_CHUNK = 4096  # moves per step
+
+
+def _grid_moves(grid, K: int) -> np.ndarray:
+    """(E, 2) pose indices of neighbouring box-grid nodes (along x, y, z) at each orientation."""
+    if grid.shape is None:
+        return np.zeros((0, 2), np.int64)
+    idx = np.arange(int(np.prod(grid.shape))).reshape(grid.shape)
+    out = []
+    for ax in range(3):
+        a = np.moveaxis(idx, ax, 0)
+        if a.shape[0] > 1:
+            out.append(np.column_stack([a[:-1].ravel(), a[1:].ravel()]))
+    if not out:
+        return np.zeros((0, 2), np.int64)
+    pos = np.vstack(out)
+    k = np.arange(K)
+    return np.column_stack([(pos[:, 0, None] * K + k).ravel(), (pos[:, 1, None] * K + k).ravel()])
+
+
+def _pair_clearance(design, att, I, J, radius):
+    """(c, pairs) clearance of cable pairs for attachment points att (c, m, 3)."""
+    a = design.exits
+    return segment_distances(att[:, I], np.broadcast_to(a[I], att[:, I].shape),
+                             att[:, J], np.broadcast_to(a[J], att[:, J].shape)) - 2 * radius
+
+
+def _sweep_hits(design, qa, qb, pairs) -> np.ndarray:
+    """(c,) True where a straight move qa -> qb (same orientation) brings cables into contact
+    with each other, the platform body or an obstacle (see the module notes)."""
+    c = len(qa)
+    a = design.exits
+    radius = 0.5 * design.cable.diameter
+    if design.dof == 6:
+        R = rotation_matrices(qa[:, 3:])
+        rb = np.einsum("nij,mj->nmi", R, design.attachments)
+    else:
+        R = None
+        rb = np.zeros((c, design.m, 3))
+    pa, pb = qa[:, :3], qb[:, :3]
+    att_a = pa[:, None] + rb
+    att_b = pb[:, None] + rb
+    hit = np.zeros(c, bool)
+    for ob in design.frame.obstacles:
+        hit |= np.any(triangle_hits_box(np.broadcast_to(a, att_a.shape), att_a, att_b,
+                                        np.asarray(ob.lower) - radius, np.asarray(ob.upper) + radius), axis=1)
+    half = np.asarray(design.platform.body_half_size, float)
+    if design.dof == 6 and np.all(half > 0):
+        fa = np.einsum("nji,nmj->nmi", R, a[None] - pa[:, None])
+        fb = np.einsum("nji,nmj->nmi", R, a[None] - pb[:, None])
+        shrink = 1e-6 * max(1.0, float(np.max(half)))
+        hit |= np.any(triangle_hits_box(np.broadcast_to(design.attachments, fa.shape), fa, fb, -half + shrink,
+                                        half - shrink), axis=1)
+    if not pairs:
+        return hit
+    I = np.array([p[0] for p in pairs])
+    J = np.array([p[1] for p in pairs])
+    c0 = _pair_clearance(design, att_a, I, J, radius)
+    c1 = _pair_clearance(design, att_b, I, J, radius)
+    D = 2.0 * np.linalg.norm(pb - pa, axis=1)  # the gap changes at most this much over the move
+    hit |= np.any((c0 < 0) | (c1 < 0), axis=1)
+    e, k = np.nonzero((c0 + c1 < D[:, None]) & ~hit[:, None])
+    s0, s1 = np.zeros(len(e)), np.ones(len(e))
+    g0, g1 = c0[e, k], c1[e, k]
+    for _ in range(SWEEP_DEPTH):
+        if not len(e):
+            break
+        keep = ~hit[e]
+        e, k, s0, s1, g0, g1 = e[keep], k[keep], s0[keep], s1[keep], g0[keep], g1[keep]
+        if not len(e):
+            break
+        sm = 0.5 * (s0 + s1)
+        att = (pa[e] + sm[:, None] * (pb[e] - pa[e]))[:, None] + rb[e]
+        gm = segment_distances(att[np.arange(len(e)), I[k]], a[I[k]], att[np.arange(len(e)), J[k]], a[J[k]]) \
+            - 2 * radius
+        hit[e[gm < 0]] = True
+        half_len = 0.5 * (s1 - s0) * D[e]
+        left = (gm >= 0) & (g0 + gm < half_len)
+        right = (gm >= 0) & (gm + g1 < half_len)
+        e = np.concatenate([e[left], e[right]])
+        k = np.concatenate([k[left], k[right]])
+        s0, s1 = np.concatenate([s0[left], sm[right]]), np.concatenate([sm[left], s1[right]])
+        g0, g1 = np.concatenate([g0[left], gm[right]]), np.concatenate([gm[left], g1[right]])
+    hit[e] = True  # not cleared after SWEEP_DEPTH halvings: taken as contact (conservative)
+    return hit
+
+
+def _sweeps(design, grid, K, node_bad, pairs, progress=None):
+    """Check every move between neighbouring grid nodes whose ends are clear.
+
+    Returns (per-pose mask of poses on a failing move, moves checked, failing moves (F, 2))."""
+    moves = _grid_moves(grid, K)
+    moves = moves[~(node_bad[moves[:, 0]] | node_bad[moves[:, 1]])]
+    bad = np.zeros(len(node_bad), bool)
+    failed = []
+    for s in range(0, len(moves), _SWEEP_CHUNK):
+        mv = moves[s:s + _SWEEP_CHUNK]
+        h = _sweep_hits(design, grid.poses[mv[:, 0]], grid.poses[mv[:, 1]], pairs)
+        bad[mv[h].ravel()] = True
+        failed.append(mv[h])
+        if progress is not None:
+            progress(min(len(moves), s + _SWEEP_CHUNK), len(moves))
+    failed = np.vstack(failed) if failed else np.zeros((0, 2), np.int64)
+    return bad, len(moves), failed
+
+
 # --------------------------------------------------------------------------------------
 # the result
 # --------------------------------------------------------------------------------------
@@ -261,6 +520,28 @@ class WorkspaceResult:
     wrench_box: np.ndarray
     extra_wrench: np.ndarray
     lp_poses: int = 0
+    acceleration: float = 0.0  # a_max [m/s**2] of the acceleration ball
+    accel_overshoot: float = 1.0  # the enclosing polytope's vertices lie this many a_max out
+    rest_margin: np.ndarray | None = None  # (N,) margin without accelerations and length errors [N]
+    length_spread: np.ndarray | None = None  # (N, m) worst tension change from length errors [N]
+    length_error: np.ndarray | None = None  # (m,) length-error half-widths used [m]
+    sweep_moves: int = 0  # moves between neighbouring grid nodes checked for contact
+    sweep_failures: np.ndarray | None = None  # (F, 2) pose indices of the moves that failed
+
+    @property
+    def points_per_axis(self) -> tuple[int, int, int] | None:
+        """Grid points along x, y, z of the task box (``None`` without a box)."""
+        return None if self.axes is None else tuple(len(a) for a in self.axes)
+
+    def max_length_spread(self) -> np.ndarray:
+        """(m,) the largest tension spread from length errors of each cable over the poses whose
+        spread is finite [N] (zeros for m = n or without length errors)."""
+        sp = self.length_spread
+        if sp is None or not sp.size:
+            return np.zeros(len(self.cable_names))
+        fin = np.where(np.isfinite(sp), sp, -np.inf)
+        out = np.max(fin, axis=0)
+        return np.where(np.isfinite(out), out, 0.0)
 
     # -- derived views ------------------------------------------------------------------
     @property
@@ -333,7 +614,9 @@ class WorkspaceResult:
         P, K, N = len(self.positions), len(self.orientations), self.n_poses
         lines = [f"Workspace of {self.design_name}"]
         grid = f"{P:,} positions" + (f" x {K} orientations = {N:,} poses" if self.kind == "rigid" else "")
-        lines.append(f"  sampled  : {grid}, grid step {self.step * 1e3:g} mm")
+        ppa = self.points_per_axis
+        per_axis = f", {' x '.join(map(str, ppa))} points along x, y, z" if ppa is not None else ""
+        lines.append(f"  sampled  : {grid}, grid step {self.step * 1e3:g} mm{per_axis}")
         load = "gravity"
         if np.any(self.extra_wrench != 0):
             load += " + extra wrench (" + ", ".join(f"{v:g}" for v in self.extra_wrench) + ")"
@@ -342,7 +625,19 @@ class WorkspaceResult:
             load += f" + wrench box +/-({f}) N"
             if len(self.wrench_box) == 6:
                 load += " +/-(" + ", ".join(f"{v:g}" for v in self.wrench_box[3:]) + ") N*m"
+        if self.acceleration > 0:
+            load += (f" + accelerations up to {self.acceleration:g} m/s^2 in any direction (polytope, vertices "
+                     f"{100 * (self.accel_overshoot - 1):.1f} % beyond)")
         lines.append(f"  load     : {load}")
+        if self.length_error is not None and np.any(self.length_error > 0) and self.length_spread is not None \
+                and len(self.cable_names) > len(self.extra_wrench):
+            sp = self.max_length_spread()
+            lines.append(f"  lengths  : length errors +/-{np.max(self.length_error) * 1e3:.2f} mm (length control) "
+                         "shift tensions by up to " + ", ".join(f"{n} {v:.1f} N" for n, v in zip(self.cable_names, sp)))
+        if self.sweep_moves:
+            nf = 0 if self.sweep_failures is None else len(self.sweep_failures)
+            lines.append(f"  moves    : {self.sweep_moves:,} moves between neighbouring nodes checked for contact, "
+                         f"{nf:,} fail")
         pf = self.position_feasible
         lines.append(f"  covered  : {int(pf.sum()):,} of {P:,} task positions ({100 * self.coverage:.1f} %)")
         if self.box_lower is not None:
@@ -472,6 +767,8 @@ class WorkspaceResult:
         meta = {"design_name": self.design_name, "kind": self.kind, "cable_names": list(self.cable_names),
                 "limited_by": list(self.limited_by), "method": self.method, "suspended": bool(self.suspended),
                 "step": float(self.step), "lp_poses": int(self.lp_poses),
+                "acceleration": float(self.acceleration), "accel_overshoot": float(self.accel_overshoot),
+                "sweep_moves": int(self.sweep_moves),
                 "reasons": {k: v[0] for k, v in REASONS.items()}}
         arrays = {}
         for f in fields(self):
@@ -483,6 +780,8 @@ class WorkspaceResult:
                 arrays[f.name] = np.asarray([] if v is None else v, float)
             elif isinstance(v, np.ndarray):
                 arrays[f.name] = v
+            elif f.name in _OPTIONAL_ARRAYS:
+                arrays[f.name] = np.zeros((0,) * _OPTIONAL_ARRAYS[f.name])
         buf = io.BytesIO()
         np.savez_compressed(buf, format=np.array(FORMAT), meta=np.array(json.dumps(meta)), **arrays)
         return atomic_write_bytes(path, buf.getvalue())
@@ -512,6 +811,7 @@ def _box_edges(lo, hi):
 _ARRAY_FIELDS = ("poses", "positions", "orientations", "orientation_index", "position_index", "from_box", "exits",
                  "feasible", "margin", "static_feasible", "static_margin", "clearance", "tensions",
                  "limiting_cable", "reasons", "t_min", "t_max", "wrench_box", "extra_wrench")
+_OPTIONAL_ARRAYS = {"rest_margin": 1, "length_spread": 2, "length_error": 1, "sweep_failures": 2}  # name -> ndim
 
 
 def load_workspace(path) -> WorkspaceResult:
@@ -531,7 +831,7 @@ def load_workspace(path) -> WorkspaceResult:
     fmt = str(data.get("format", ""))
     if fmt != FORMAT:
         raise ValueError(f"{path}: expected a {FORMAT!r} file, found format {fmt or 'none'!r}")
-    missing = [k for k in (*_ARRAY_FIELDS, "meta", "axis_x", "axis_y", "axis_z", "box_lower", "box_upper")
+    missing = [k for k in (*_ARRAY_FIELDS, *_OPTIONAL_ARRAYS, "meta", "axis_x", "axis_y", "axis_z", "box_lower", "box_upper")
                if k not in data]
     if missing:
         raise ValueError(f"{path}: missing arrays {', '.join(missing)}")
@@ -548,6 +848,9 @@ def load_workspace(path) -> WorkspaceResult:
             design_name=str(meta["design_name"]), kind=str(meta["kind"]), cable_names=tuple(meta["cable_names"]),
             limited_by=tuple(meta["limited_by"]), method=str(meta["method"]), suspended=bool(meta["suspended"]),
             step=float(meta["step"]), lp_poses=int(meta.get("lp_poses", 0)),
+            acceleration=float(meta["acceleration"]), accel_overshoot=float(meta["accel_overshoot"]),
+            sweep_moves=int(meta["sweep_moves"]),
+            **{k: (data[k] if data[k].size or k == "sweep_failures" else None) for k in _OPTIONAL_ARRAYS},
             axes=axes if has_axes else None,
             box_lower=data["box_lower"] if len(data["box_lower"]) else None,
             box_upper=data["box_upper"] if len(data["box_upper"]) else None,
@@ -567,7 +870,21 @@ def _suspended(design, positions) -> bool:
     return bool(np.min(design.exits @ up) > np.max(positions @ up))
 
 
+def _length_errors(design) -> np.ndarray:
+    """(m,) half-widths of each cable's unstretched-length error under length control [m]:
+    home length + (quantisation + deadband counts) x length per count, from the error budget."""
+    from .accuracy import error_budget
+    from .kinematics import length_per_count
+
+    b = error_budget(design)
+    lpc = length_per_count(design)
+    dead = np.array([w.deadband_counts if b.deadband_counts is None else b.deadband_counts for w in design.winches],
+                    float)
+    return b.home_length + (b.quantisation_counts + dead) * lpc
+
+
 def compute_workspace(design, *, step: float | None = None, orientations=None, extra_wrench=None,
+                      acceleration: float | None = None, length_errors=None, sweep: bool = True,
                       progress=None, backend: str = "auto") -> WorkspaceResult:
     """Classify every pose of the task region.
 
@@ -575,8 +892,15 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     ----------
     design : Design
     step : grid step [m]; default ``design.task.step``.
-    orientations : (K, 3) roll, pitch, yaw [rad] for rigid platforms; default the task's set.
+    orientations : (K, 3) roll, pitch, yaw [rad] for rigid platforms; default the task's set
+        (:func:`cablekit.region.task_orientations`: the list and the range).
     extra_wrench : (n,) constant wrench added to gravity [N, N*m] (e.g. a process force).
+    acceleration : largest acceleration in any direction [m/s**2]; default
+        ``design.task.acceleration`` (0: quasi-static).
+    length_errors : (m,) or scalar half-widths of the cables' length errors [m] for redundant
+        rigs; default from the ``[errors]`` budget (home length + quantisation + deadband).
+        0 switches the length-error term off.
+    sweep : check contact on the moves between neighbouring grid nodes.
     progress : optional callable ``progress(done, total)`` called after each chunk of poses.
     backend : tension backend, see :func:`cablekit.tension.distribute`.
 
@@ -588,25 +912,49 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     ------
     ValueError
         A non-positive or non-finite step, an empty task region or orientation set, a bad
-        extra wrench (see :func:`cablekit.region.task_poses`).
+        extra wrench, acceleration or length error (see :func:`cablekit.region.task_poses`).
+
+    Notes
+    -----
+    See the module notes: the load set (gravity, wrench box, accelerations), the length-error
+    spread ``dt = -(K_c - K_c W^T K^-1 W K_c) e`` and the sweep test.
     """
+    from .stiffness import mass_matrix
+
     grid = task_poses(design, step=step, orientations=orientations)
     n, m = design.dof, design.m
     extra = np.zeros(n) if extra_wrench is None else np.asarray(extra_wrench, float).reshape(-1)
     if extra.shape != (n,) or not np.all(np.isfinite(extra)):
         raise ValueError(f"extra wrench must be {n} finite numbers [N{', N*m' if n == 6 else ''}], got {extra.tolist()}")
+    a_max = float(design.task.acceleration if acceleration is None else acceleration)
+    if not math.isfinite(a_max) or a_max < 0:
+        raise ValueError(f"acceleration must be a finite, non-negative value [m/s^2], got {acceleration!r}")
+    redundant = m > n
+    dL = np.zeros(m)
+    if redundant:
+        dL = _length_errors(design) if length_errors is None else np.broadcast_to(
+            np.asarray(length_errors, float), (m,)).copy()
+        if not np.all(np.isfinite(dL)) or np.any(dL < 0):
+            raise ValueError(f"length errors must be finite, non-negative lengths [m], got {dL.tolist()}")
     box = np.asarray(design.task.wrench_box[:n], float)
+    wbox = box if np.any(box > 0) else None
     lim = tension_limits(design)
     pairs = _cable_pairs(design)
     q_all = grid.poses
     N = len(q_all)
+    if a_max > 0:
+        unit, overshoot = acceleration_polytope()
+        accels = a_max * unit
+    else:
+        accels, overshoot = np.zeros((0, 3)), 1.0
     out = {k: np.empty(N, t) for k, t in (("margin", float), ("static_margin", float), ("clearance", float),
-                                          ("limiting_cable", np.int64), ("reasons", np.uint8),
-                                          ("static_ok", bool))}
+                                          ("limiting_cable", np.int64), ("reasons", np.uint16),
+                                          ("static_ok", bool), ("rest_margin", float), ("geom_bad", bool))}
     tensions = np.empty((N, m))
+    spread = np.zeros((N, m))
     methods, lp_poses = set(), 0
     motor = np.array([x == "motor" for x in lim.limited_by])
-    loaded = bool(np.any(box > 0) or np.any(extra != 0))  # else the static map is the same map
+    loaded = bool(wbox is not None or np.any(extra != 0) or a_max > 0)  # else the static map is the same map
     if progress is not None:
         progress(0, N)
     for s in range(0, N, CHUNK):
@@ -614,49 +962,82 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         q = q_all[s:e]
         W = structure_matrix(design, q)
         w_g = external_wrench(design, q)
-        res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=box if np.any(box > 0) else None,
-                         backend=backend)
+        res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=wbox, backend=backend)
         stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend) if loaded else res
         methods.add(res.method.split("; ")[1])
         lp_poses += int(res.by_lp.sum()) + (int(stat.by_lp.sum()) if loaded else 0)
+        margin = res.margin.copy()
+        act_lo, act_hi, lcable = res.active_lower.copy(), res.active_upper.copy(), res.limiting_cable.copy()
+        if len(accels):
+            G = mass_matrix(design, q)[:, :, :3]  # inertial wrench of an acceleration a: -G a
+            for acc in accels:
+                rv = distribute(W, w_g + extra - G @ acc, lim.t_min, lim.t_max, wrench_box=wbox, backend=backend)
+                lp_poses += int(rv.by_lp.sum())
+                worse = rv.margin < margin
+                margin[worse] = rv.margin[worse]
+                act_lo[worse], act_hi[worse] = rv.active_lower[worse], rv.active_upper[worse]
+                lcable[worse] = rv.limiting_cable[worse]
+        rest = margin.copy() if not len(accels) else res.margin
+        rs = np.zeros(e - s, np.uint16)
+        bad = margin < 0
+        rs |= np.where(bad & ~np.isfinite(margin), REASON_BITS["no_solution"], 0).astype(np.uint16)
+        tb = bad & np.isfinite(margin)
+        rs |= np.where(tb & np.any(act_lo, axis=1), REASON_BITS["slack"], 0).astype(np.uint16)
+        rs |= np.where(tb & np.any(act_hi & ~motor, axis=1), REASON_BITS["rope"], 0).astype(np.uint16)
+        rs |= np.where(tb & np.any(act_hi & motor, axis=1), REASON_BITS["motor"], 0).astype(np.uint16)
+        # a failing pose must carry a reason even if no active set was reported (never a silent pass)
+        rs |= np.where(bad & (rs == 0), REASON_BITS["slack"], 0).astype(np.uint16)
+        if redundant and np.any(dL > 0):
+            sp = length_error_spread(design, q, res.tensions, dL)
+            spread[s:e] = sp
+            worst = np.max(sp, axis=1)
+            short = ~bad & (margin - worst < 0)
+            rs |= np.where(short, REASON_BITS["length"], 0).astype(np.uint16)
+            lcable = np.where(short, np.argmax(np.where(np.isfinite(sp), sp, np.inf), axis=1), lcable)
+            margin = margin - worst
         clearance, body, obstacle = _geometry(design, q, pairs)
-        rs = np.zeros(e - s, np.uint8)
-        bad = ~res.feasible
-        rs |= np.where(bad & ~np.isfinite(res.margin), REASON_BITS["no_solution"], 0).astype(np.uint8)
-        tb = bad & np.isfinite(res.margin)
-        rs |= np.where(tb & np.any(res.active_lower, axis=1), REASON_BITS["slack"], 0).astype(np.uint8)
-        rs |= np.where(tb & np.any(res.active_upper & ~motor, axis=1), REASON_BITS["rope"], 0).astype(np.uint8)
-        rs |= np.where(tb & np.any(res.active_upper & motor, axis=1), REASON_BITS["motor"], 0).astype(np.uint8)
-        rs |= np.where(clearance < 0, REASON_BITS["interference"], 0).astype(np.uint8)
-        rs |= np.where(body, REASON_BITS["body"], 0).astype(np.uint8)
-        rs |= np.where(obstacle, REASON_BITS["obstacle"], 0).astype(np.uint8)
+        rs |= np.where(clearance < 0, REASON_BITS["interference"], 0).astype(np.uint16)
+        rs |= np.where(body, REASON_BITS["body"], 0).astype(np.uint16)
+        rs |= np.where(obstacle, REASON_BITS["obstacle"], 0).astype(np.uint16)
         geom_ok = (clearance >= 0) & ~body & ~obstacle
-        out["margin"][s:e] = res.margin
+        out["margin"][s:e] = margin
+        out["rest_margin"][s:e] = rest
         out["static_margin"][s:e] = stat.margin
         out["clearance"][s:e] = clearance
-        out["limiting_cable"][s:e] = res.limiting_cable
+        out["limiting_cable"][s:e] = lcable
         out["reasons"][s:e] = rs
         out["static_ok"][s:e] = stat.feasible & geom_ok
+        out["geom_bad"][s:e] = ~geom_ok
         tensions[s:e] = res.tensions
         if progress is not None:
             progress(e, N)
+    K = len(grid.orientation_index) // max(len(grid.positions), 1)
+    n_moves, failed = 0, np.zeros((0, 2), np.int64)
+    if sweep and grid.shape is not None:
+        moved, n_moves, failed = _sweeps(design, grid, K, out["geom_bad"], pairs)
+        out["reasons"] |= np.where(moved, REASON_BITS["sweep"], 0).astype(np.uint16)
+        out["static_ok"] &= ~moved
     method = "; ".join(sorted(methods))
     if lp_poses:
         method += f"; {lp_poses} pose solve(s) by linear program (scipy HiGHS)"
+    if len(accels):
+        method += f"; {len(accels)} acceleration vertices per pose"
     t = design.task
     return WorkspaceResult(
         design_name=design.meta.name, kind=design.platform.kind, cable_names=tuple(design.cable_names),
         limited_by=tuple(lim.limited_by), method=f"max-margin (centred) tensions; {method}",
         suspended=_suspended(design, grid.positions), step=float(grid.step), poses=q_all, positions=grid.positions,
-        orientations=(np.zeros((1, 3)) if n == 3 else np.array(
-            t.orientations if orientations is None else orientations, float).reshape(-1, 3)),
+        orientations=(np.zeros((1, 3)) if n == 3 else (task_orientations(t) if orientations is None else np.array(
+            orientations, float).reshape(-1, 3))),
         orientation_index=grid.orientation_index, position_index=grid.position_index, from_box=grid.from_box,
         axes=grid.axes, box_lower=None if t.box_lower is None else np.array(t.box_lower, float),
         box_upper=None if t.box_upper is None else np.array(t.box_upper, float), exits=design.exits,
         feasible=out["reasons"] == 0, margin=out["margin"], static_feasible=out["static_ok"],
         static_margin=out["static_margin"], clearance=out["clearance"], tensions=tensions,
         limiting_cable=out["limiting_cable"], reasons=out["reasons"], t_min=lim.t_min, t_max=lim.t_max,
-        wrench_box=box, extra_wrench=extra, lp_poses=lp_poses)
+        wrench_box=box, extra_wrench=extra, lp_poses=lp_poses, acceleration=a_max, accel_overshoot=overshoot,
+        rest_margin=out["rest_margin"], length_spread=spread, length_error=dL, sweep_moves=int(n_moves),
+        sweep_failures=failed)
 
 
 # --------------------------------------------------------------------------------------
@@ -687,11 +1068,57 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
     value = float(ws.margin[k])
     margin, status = judge(value, 0.0, upper=False, warn_limit=share * span)
     cable = ws.cable_names[ws.limiting_cable[k]] if ws.limiting_cable[k] >= 0 else "none"
+    loads = []
+    if ws.acceleration > 0:
+        loads.append(f"accelerations up to {ws.acceleration:g} m/s^2 in any direction")
+    if ws.length_error is not None and np.any(ws.length_error > 0) and len(ws.cable_names) > len(ws.extra_wrench):
+        loads.append(f"length errors up to +/-{np.max(ws.length_error) * 1e3:.2f} mm")
     checks.append(Check("tension_margin", "task region", "Least tension margin over the task region",
                         value, 0.0, "N", margin, status,
                         f"{_WFW_SOURCE}; warn below {100 * share:g} % of the tension range: "
                         f"{PRACTICE['tension_margin_warn'].source}",
-                        f"at {ws._pose_text(k)}, cable {cable}"))
+                        f"at {ws._pose_text(k)}, cable {cable}" + (f" (with {' and '.join(loads)})" if loads else "")))
+
+    if ws.length_spread is not None and len(ws.cable_names) > len(ws.extra_wrench) \
+            and ws.length_error is not None and np.any(ws.length_error > 0):
+        short = (ws.reasons & REASON_BITS["length"]) != 0
+        value = float(np.count_nonzero(short))
+        margin, status = judge(value, 0.0, upper=True)
+        sp = ws.max_length_spread()
+        checks.append(Check(
+            "length_error_tensions", "cables", "Tension window holds with length errors (length-controlled winches)",
+            value, 0.0, "poses", margin, status,
+            "stiffness model of the cable-driven platform (Behzadipour and Khajepour 2006): a length error e "
+            "changes the tensions by -(K_c - K_c W^T K^-1 W K_c) e; worst case over the [errors] budget "
+            "(home length, quantisation, deadband)",
+            f"length errors +/-{np.max(ws.length_error) * 1e3:.2f} mm shift tensions by up to "
+            + ", ".join(f"{n} {v:.1f} N" for n, v in zip(ws.cable_names, sp))
+            + (f"; first failing at {ws._pose_text(int(np.argmax(short)))}" if np.any(short) else "")))
+
+    ppa = ws.points_per_axis
+    if ppa is not None:
+        need = practice_value("grid_points_per_axis_min", design.practice)
+        value = float(min(ppa))
+        margin, status = judge(value, 2.0, upper=False, warn_limit=need)
+        checks.append(Check(
+            "grid_resolution", "task region", "Grid fine enough to stand for the task box",
+            value, need, "points", value - need, status,
+            f"at least {need:g} points along each axis: {PRACTICE['grid_points_per_axis_min'].source}; "
+            "fewer than 2 fails (the box's faces are not both sampled)",
+            f"grid step {ws.step * 1e3:g} mm: {ppa[0]} x {ppa[1]} x {ppa[2]} points along x, y, z; tensions are judged "
+            "at the nodes only"))
+        nf = 0 if ws.sweep_failures is None else len(ws.sweep_failures)
+        margin, status = judge(float(nf), 0.0, upper=True)
+        where = (f"first between {ws._pose_text(int(ws.sweep_failures[0, 0]))} and "
+                 f"{ws._pose_text(int(ws.sweep_failures[0, 1]))}") if nf else \
+            f"all {ws.sweep_moves:,} moves between neighbouring clear nodes are clear"
+        if ws.sweep_moves or nf:
+            checks.append(Check(
+                "cable_sweep", "cables", "Cables clear on the moves between grid nodes",
+                float(nf), 0.0, "moves", margin, status,
+                "geometry: cable pairs by Lipschitz-bounded bisection, obstacles and body on the swept triangles "
+                "(Akenine-Moller 2001, separating axes); common practice, no source, that running cables must not "
+                "touch", where))
 
     if np.any(np.isfinite(ws.clearance)):
         k = int(np.argmin(ws.clearance))
@@ -716,3 +1143,53 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
                             "geometry: a cable segment must not pass through a solid (common practice, no source)",
                             where))
     return checks
+
+
+def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> list[str]:
+    """The modelling assumptions the workspace verdicts rest on, one sentence each."""
+    ws = workspace
+    n, m = design.dof, design.m
+    t = design.task
+    out = []
+    a = t.acceleration if ws is None else ws.acceleration
+    if a > 0:
+        over = acceleration_polytope()[1] if ws is None else ws.accel_overshoot
+        out.append(f"Accelerations up to {a:g} m/s^2 in any direction: the inertial wrench -M a of platform, payload and "
+                   "arm (their masses lumped at their centres; for a rigid platform its moment through the combined "
+                   "centre of mass) is added to gravity and the wrench box; the ball |a| <= a_max is enclosed in a "
+                   f"polytope whose vertices reach {100 * (over - 1):.1f} % beyond a_max (conservative) and every "
+                   "vertex is checked. Angular accelerations and velocities are not in the design file and are not "
+                   "included; nor is the arm's own motion.")
+    else:
+        out.append("task.acceleration is 0: the workspace map is quasi-static (no inertial loads are checked).")
+    if m > n:
+        dL = _length_errors(design) if ws is None or ws.length_error is None else ws.length_error
+        out.append(f"{m} cables for {n} degrees of freedom: the winches are taken to be length-controlled; length errors "
+                   f"up to +/-{np.max(dL) * 1e3:.2f} mm per cable (home length, quantisation and deadband of the "
+                   "[errors] budget) shift the tensions through the stiffness model (winches locked, cables EA/L, "
+                   "first order); the largest shift of any cable is taken off each pose's margin (conservative). "
+                   "Otherwise the verdict assumes the control realises the max-margin tension distribution for "
+                   "every load.")
+    else:
+        out.append(f"{m} cables for {n} degrees of freedom: the tensions are fixed by the load; length errors move the "
+                   "pose (see the accuracy section), not the tensions (to first order).")
+    try:
+        K = len(task_orientations(t)) if n == 6 else 1
+    except ValueError:
+        K = len(t.orientations)
+    if n == 6:
+        rng = "" if t.orientation_range is None else (
+            f", including the orientation range sampled with {t.orientation_samples} values per angle (every bound "
+            "combination and interior samples)")
+        out.append(f"Orientations: {K} sampled{rng}; orientations between the samples are not checked.")
+    if ws is not None and ws.points_per_axis is not None:
+        ppa = ws.points_per_axis
+        out.append(f"Sampling: grid step {ws.step * 1e3:g} mm, {ppa[0]} x {ppa[1]} x {ppa[2]} points along x, y, z; "
+                   "tensions are judged at the nodes only; contact is checked at the nodes and on the straight moves "
+                   "between neighbouring nodes at each sampled orientation (moves between orientations are not "
+                   "swept).")
+    elif t.box_lower is None:
+        out.append("Sampling: task points only; nothing between the points is checked.")
+    out.append("Cables are straight and massless with fixed exit points in the workspace map (sag is judged in the "
+               "cables section).")
+    return out
