@@ -14,8 +14,9 @@ from cablekit.design import Obstacle, load_design
 from cablekit.statics import solve_square, tension_limits
 from cablekit.kinematics import structure_matrix
 from cablekit.statics import external_wrench
-from cablekit.workspace import (COLOURS, REASON_BITS, WorkspaceResult, compute_workspace, design_checks,
-                                load_workspace, segment_distances, segment_hits_box)
+from cablekit.workspace import (COLOURS, REASON_BITS, WorkspaceResult, compute_workspace, design_assumptions,
+                                design_checks, load_workspace, segment_distances, segment_hits_box,
+                                triangle_hits_box)
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 GREENHOUSE = EXAMPLES / "greenhouse_tray_3cable.toml"
@@ -26,7 +27,7 @@ DEMOS = ["greenhouse_tray_3cable.toml", "workshop_camera_4cable.toml", "hall_san
 def at_points(d, points, orientations=((0.0, 0.0, 0.0),)):
     """The design with its task region replaced by explicit points (no box)."""
     task = replace(d.task, box_lower=None, box_upper=None, points=tuple(map(tuple, points)),
-                   orientations=tuple(map(tuple, orientations)))
+                   orientations=tuple(map(tuple, orientations)), orientation_range=None)
     return replace(d, task=task)
 
 
@@ -339,3 +340,378 @@ def test_map_without_numba_is_the_same_map(demo, monkeypatch):
     assert "compiled" not in plain.method
     assert np.array_equal(plain.reasons, compiled.reasons)
     assert np.allclose(plain.margin, compiled.margin, atol=1e-8)
+
+
+# --------------------------------------------------------------------------------------
+# accelerations (issue 11 item 3)
+# --------------------------------------------------------------------------------------
+def _tripod(d, *, R=1.5, h=0.5, H=2.4, t_min=17.0):
+    """The greenhouse rig rebuilt as an exact equilateral tripod: exits on a circle of radius R at
+    height H, no arm, no obstacles, strong motors; one task point at the centre, h below the exits."""
+    ang = np.radians([90.0, 210.0, 330.0])
+    exits = tuple(replace(e, position=(R * np.cos(t), R * np.sin(t), H)) for e, t in zip(d.frame.exits, ang))
+    winches = tuple(replace(w, motor_rated_torque=50.0) for w in d.winches)
+    d = replace(d, frame=replace(d.frame, exits=exits, obstacles=()), winches=winches, sections={},
+                cable=replace(d.cable, min_tension=t_min))
+    return at_points(d, [(0.0, 0.0, H - h)])
+
+
+def test_acceleration_fails_a_pose_that_holds_at_rest():
+    # Worked by hand (statics of a symmetric tripod): exits at radius R = 1.5 m, the mass
+    # M = 1.2 + 0.5 = 1.7 kg hanging h = 0.5 m below their centre, cable length L = sqrt(R^2 + h^2).
+    # At rest each cable holds t0 = M g L / (3 h) = 17.57 N.  Accelerating horizontally by a away
+    # from exit 1 needs (t1 - t2) R / L = -M a (horizontal) with t1 + 2 t2 = M g L / h (vertical),
+    # so t1 = t0 - (2/3) M a L / R = 17.57 - 1.19 = 16.38 N at a = 1 m/s^2: below t_min = 17 N.
+    d = _tripod(load_design(GREENHOUSE))
+    M, g, R, h = 1.7, d.frame.g, 1.5, 0.5
+    L = np.hypot(R, h)
+    t0 = M * g * L / (3 * h)
+    t1 = t0 - 2 / 3 * M * 1.0 * L / R
+    assert t0 == pytest.approx(17.57, abs=0.01) and t1 < 17.0 < t0
+    rest = compute_workspace(d, acceleration=0.0)
+    assert rest.feasible[0] and rest.tensions[0] == pytest.approx(np.full(3, t0), rel=1e-9)
+    moving = compute_workspace(d, acceleration=1.0)
+    assert not moving.feasible[0] and has(moving, "slack")[0]
+    assert moving.rest_margin[0] == pytest.approx(t0 - 17.0, rel=1e-9)  # the margin at rest is kept
+    # The exact least tension over the ball |a| <= a_max is t0 - M a_max |row_i(W^-1)| (Cauchy-Schwarz);
+    # the map's polytope encloses the ball, so its margin lies between the ball's and the ball's
+    # at a_max times the polytope's overshoot (conservative, never optimistic).
+    W = structure_matrix(d, np.zeros((1, 3)) + [0.0, 0.0, 1.9])[0]
+    rows = np.linalg.norm(np.linalg.inv(W), axis=1)  # t = -W^-1 (w_g - M a)
+    exact = np.min(t0 - M * 1.0 * rows) - 17.0
+    assert exact - 1e-9 >= moving.margin[0] >= np.min(t0 - M * moving.accel_overshoot * rows) - 17.0 - 1e-9
+    # the hand-worked direction alone already fails: the ball's worst is at most t1
+    assert np.min(t0 - M * rows) <= t1 + 1e-12
+    # a gentle acceleration within the rest margin passes
+    gentle = (t0 - 17.0) / (M * np.max(rows) * moving.accel_overshoot) * 0.9
+    assert compute_workspace(d, acceleration=gentle).feasible[0]
+
+
+def test_acceleration_polytope_encloses_the_ball():
+    # Every unit direction's support value of the polytope must be >= 1 (it contains the unit
+    # ball); faces from scipy.spatial.ConvexHull (Qhull) of the returned vertices.
+    from scipy.spatial import ConvexHull
+
+    from cablekit.workspace import acceleration_polytope
+
+    for level, count in ((0, 12), (1, 42)):
+        v, over = acceleration_polytope(level)
+        assert v.shape == (count, 3)
+        assert np.allclose(np.linalg.norm(v, axis=1), over, rtol=1e-12)
+        hull = ConvexHull(v)
+        assert np.min(-hull.equations[:, 3]) == pytest.approx(1.0, rel=1e-12)  # nearest face touches the ball
+        dirs = np.random.default_rng(level).normal(size=(20000, 3))
+        dirs /= np.linalg.norm(dirs, axis=1)[:, None]
+        assert np.min(np.max(dirs @ v.T, axis=1)) >= 1.0 - 1e-12
+    # regular icosahedron of edge 1: circumradius sqrt(10 + 2 sqrt 5) / 4, inradius sqrt 3 (3 + sqrt 5) / 12
+    # (standard solid-geometry formulas, from memory): their ratio is the level-0 overshoot
+    r5 = np.sqrt(5.0)
+    assert acceleration_polytope(0)[1] == pytest.approx(np.sqrt(10 + 2 * r5) / 4 / (np.sqrt(3) * (3 + r5) / 12),
+                                                        rel=1e-12)
+
+
+def test_rigid_platform_acceleration_includes_the_moment_of_the_inertial_force():
+    # An offset centre of mass c (platform frame) accelerating by a needs the moment m c x a from the
+    # cables (Newton-Euler about the reference point); with the acceleration along x and c along -z
+    # the moment is about y.  Checked through the map's margins: moving the payload's centre of mass
+    # further off the reference point must lower the least margin under acceleration but not at rest.
+    d = load_design(SANDER)
+    d = at_points(replace(d, sections={}), [(2.0, 1.5, 1.25)])
+    near = compute_workspace(d, acceleration=2.0, length_errors=0.0)
+    far_d = replace(d, payload=replace(d.payload, center_of_mass=(0.0, 0.0, -0.6)))
+    far = compute_workspace(far_d, acceleration=2.0, length_errors=0.0)
+    rest_near = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    rest_far = compute_workspace(far_d, acceleration=0.0, length_errors=0.0)
+    loss_near = rest_near.margin[0] - near.margin[0]
+    loss_far = rest_far.margin[0] - far.margin[0]
+    assert loss_far > loss_near > 0
+
+
+# --------------------------------------------------------------------------------------
+# length errors on redundant rigs (issue 11 item 4)
+# --------------------------------------------------------------------------------------
+CAMERA = EXAMPLES / "workshop_camera_4cable.toml"
+
+
+def test_length_error_spread_matches_a_nonlinear_spring_solve():
+    # Reference: the full nonlinear equilibrium of the platform on linear springs
+    # t_i = k_i (L_i(q) - L0_i), k_i = EA / L_i (Behzadipour and Khajepour 2006 for the cable model),
+    # solved with scipy.optimize.root for every vertex of the length-error box; the largest tension
+    # change of each cable must match the first-order spread sum_j |S_ij| delta_j.
+    from scipy.optimize import root
+
+    from cablekit.kinematics import cable_lengths
+    from cablekit.workspace import length_error_spread
+
+    d = replace(load_design(CAMERA), sections={})
+    q0 = np.array([[2.0, 1.5, 1.8]])
+    lim = tension_limits(d)
+    t0 = compute_workspace(at_points(d, q0), acceleration=0.0, length_errors=0.0).tensions[0]
+    delta = 1e-3
+    spread = length_error_spread(d, q0, t0[None], np.full(d.m, delta))[0]
+    L = cable_lengths(d, q0)[0]
+    k = d.cable.axial_stiffness / L
+    L0 = L - t0 / k
+    w = external_wrench(d, q0)[0]
+    worst = np.zeros(d.m)
+    for signs in np.array(np.meshgrid(*[[-1.0, 1.0]] * d.m)).reshape(d.m, -1).T:
+        L0e = L0 + delta * signs
+
+        def residual(p):
+            Lp = cable_lengths(d, p[None])[0]
+            t = k * (Lp - L0e)
+            return structure_matrix(d, p[None])[0] @ t + w
+
+        sol = root(residual, q0[0], method="hybr", options={"xtol": 1e-13})
+        assert np.max(np.abs(residual(sol.x))) < 1e-6  # balanced to a micro-newton
+        t = k * (cable_lengths(d, sol.x[None])[0] - L0e)
+        worst = np.maximum(worst, np.abs(t - t0))
+    # 1 mm on 2.5 m cables: second-order terms well under 1 %
+    assert spread == pytest.approx(worst, rel=1e-2)
+    assert np.all(spread > 100.0)  # stiff steel: a 1 mm error moves the tensions by more than 100 N
+    assert np.all(lim.t_max - lim.t_min < 2 * spread)
+
+
+def test_length_errors_fail_a_redundant_rig_that_holds_with_exact_lengths():
+    # The camera's four stiff cables hold the pod at home with a positive margin when the lengths
+    # are exact; a +/-2 mm error shifts each tension by about 300 N (test above), far beyond the
+    # 5..61 N window, so the pose must fail for the length-error reason (and only for it).
+    d = at_points(load_design(CAMERA), [(2.0, 1.5, 1.8)])
+    exact = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    assert exact.feasible[0] and exact.margin[0] > 5.0
+    ws = compute_workspace(d, acceleration=0.0)
+    assert np.all(ws.length_error > 2e-3)  # budget: home 2 mm + quantisation + deadband counts
+    assert not ws.feasible[0] and ws.reasons[0] == REASON_BITS["length"]
+    assert ws.margin[0] == pytest.approx(exact.margin[0] - np.max(ws.length_spread[0]), rel=1e-9)
+    checks = {c.key: c for c in design_checks(d, workspace=ws)}
+    assert checks["length_error_tensions"].status == "fail"
+    assert "NW" in checks["length_error_tensions"].detail
+    text = "\n".join(ws.summary())
+    assert "length errors" in text and "NW" in text
+    # a tiny error (0.01 mm) keeps the pose: the check is not a blanket refusal
+    tiny = compute_workspace(d, acceleration=0.0, length_errors=1e-5)
+    assert tiny.feasible[0] and 0 < np.max(tiny.length_spread[0]) < exact.margin[0]
+
+
+def test_square_rigs_have_no_length_spread_and_say_why():
+    # m = n: the elastic self-stress S = K_c - K_c W^T (W K_c W^T)^-1 W K_c is zero (W invertible):
+    # length errors move the pose, not the tensions
+    d = load_design(GREENHOUSE)
+    ws = compute_workspace(d, step=0.2)
+    assert not np.any(ws.length_spread) and not has(ws, "length").any()
+    assert "length_error_tensions" not in {c.key for c in design_checks(d, workspace=ws)}
+    text = " ".join(design_assumptions(d, workspace=ws))
+    assert "move the pose" in text
+
+
+# --------------------------------------------------------------------------------------
+# orientation ranges (issue 11 item 5)
+# --------------------------------------------------------------------------------------
+def _with_task_lines(path, old, new):
+    from cablekit.design import loads_design
+
+    text = path.read_text()
+    assert text.count(old) == 1
+    return loads_design(text.replace(old, new))
+
+
+SANDER_ORIS = '''orientations = ["0, 0, 10 deg"]
+orientation_range = { roll = "-10, 10 deg", pitch = "-10, 10 deg" }
+orientation_samples = 3'''
+
+
+def test_orientation_range_is_sampled_at_every_bound_combination_and_inside():
+    from cablekit.region import task_orientations
+
+    d = load_design(SANDER)
+    assert d.task.orientation_range is not None
+    deg = np.degrees(task_orientations(d.task))
+    # the list first, then the 3 x 3 grid of roll and pitch (yaw left out: 0)
+    assert deg.shape == (10, 3)
+    want = {(r, p, 0.0) for r in (-10.0, 0.0, 10.0) for p in (-10.0, 0.0, 10.0)} | {(0.0, 0.0, 10.0)}
+    assert {tuple(np.round(o, 9) + 0.0) for o in deg} == want
+    corners = {(r, p, 0.0) for r in (-10.0, 10.0) for p in (-10.0, 10.0)}
+    assert corners <= {tuple(np.round(o, 9) + 0.0) for o in deg}
+    # five values per angle over three angles: 125 orientations, the 8 corners among them
+    d5 = _with_task_lines(SANDER, SANDER_ORIS, 'orientation_range = { roll = "-10, 10 deg", pitch = "-10, 10 deg", '
+                                               'yaw = "0, 20 deg" }\norientation_samples = 5')
+    o5 = np.degrees(task_orientations(d5.task))
+    assert len(o5) == 125  # (0, 0, 0) of the default list is one of the grid's values
+    for corner in [(r, p, y) for r in (-10, 10) for p in (-10, 10) for y in (0, 20)]:
+        assert np.any(np.all(np.isclose(o5, corner), axis=1))
+    # the map uses the same set, and the design file round-trips through save
+    from cablekit.design import dumps_design, loads_design
+
+    back = loads_design(dumps_design(d))
+    assert np.allclose(back.task.orientation_range, d.task.orientation_range, rtol=1e-12, atol=0)  # text repr round-trips
+    assert back.task.orientation_samples == 3
+
+
+@pytest.mark.parametrize("text, field", [
+    ('orientation_range = { roll = "10, -10 deg" }', "task.orientation_range.roll"),
+    ('orientation_range = { roll = "-10, 10 mm" }', "task.orientation_range.roll"),
+    ('orientation_range = { roll = "-10 deg" }', "task.orientation_range.roll"),
+    ('orientation_range = { spin = "-10, 10 deg" }', "task.orientation_range.spin"),
+    ('orientation_range = "10 deg"', "task.orientation_range"),
+    ('orientation_range = { roll = "-10, 10 deg" }\norientation_samples = 1', "task.orientation_samples"),
+    ('orientation_range = { roll = "-10, 10 deg" }\norientation_samples = 2.5', "task.orientation_samples"),
+])
+def test_bad_orientation_ranges_name_the_field(text, field):
+    from cablekit.design import DesignError
+
+    with pytest.raises(DesignError) as err:
+        _with_task_lines(SANDER, SANDER_ORIS, text)
+    assert field in str(err.value)
+
+
+def test_a_point_platform_refuses_an_orientation_range():
+    from cablekit.design import DesignError
+
+    with pytest.raises(DesignError, match="task.orientation_range"):
+        _with_task_lines(GREENHOUSE, 'step = "50 mm"', 'step = "50 mm"\norientation_range = { roll = "-5, 5 deg" }')
+
+
+def test_orientation_range_finds_a_combined_tilt_the_single_axis_list_misses():
+    # At (1.3, 1.1, 1.3) m the sander holds its load tilted 10 deg about x alone or about y alone
+    # (either sign), but not tilted -10 deg about x and +10 deg about y together: only a range that
+    # samples every bound combination sees it.  Reference for the failing corner: scipy's HiGHS LP
+    # (cablekit.statics.solve_lp) at every vertex of the wrench box.
+    from cablekit.statics import solve_lp
+    from cablekit.tension import box_vertices
+
+    d = load_design(SANDER)
+    single = np.radians([[0, 0, 0], [10, 0, 0], [-10, 0, 0], [0, 10, 0], [0, -10, 0]])
+    p = [(1.3, 1.1, 1.3)]
+    listed = at_points(d, p, orientations=single)
+    ws_list = compute_workspace(listed, acceleration=0.0, length_errors=0.0)
+    assert ws_list.position_feasible[0]
+    ranged = replace(listed, task=replace(listed.task, orientations=((0.0, 0.0, 0.0),),
+                                          orientation_range=((-np.radians(10), np.radians(10)),
+                                                             (-np.radians(10), np.radians(10)), (0.0, 0.0))))
+    ws_range = compute_workspace(ranged, acceleration=0.0, length_errors=0.0)
+    assert not ws_range.position_feasible[0]
+    k = int(np.argmin(ws_range.margin))
+    assert np.degrees(ws_range.poses[k, 3:]) == pytest.approx([-10.0, 10.0, 0.0])
+    q = ws_range.poses[k:k + 1]
+    lim = tension_limits(d)
+    verts = box_vertices(external_wrench(d, q), d.task.wrench_box)[0]
+    lp = [solve_lp(structure_matrix(d, q), v[None], lim.t_min, lim.t_max).margin[0] for v in verts]
+    assert min(lp) < 0
+    assert ws_range.margin[k] == pytest.approx(min(lp), abs=1e-6)
+
+
+# --------------------------------------------------------------------------------------
+# sampling is not a proof (issue 11 item 8)
+# --------------------------------------------------------------------------------------
+def test_triangle_hits_box_hand_cases():
+    # separating-axis test of a triangle against a box (Akenine-Moller, "Fast 3D triangle-box
+    # overlap testing", 2001); cases worked by hand against the unit box
+    lo, hi = np.zeros(3), np.ones(3)
+    tri = np.array([
+        [[-1, -1, 0.5], [3, -1, 0.5], [-1, 3, 0.5]],  # a big triangle slicing the box at z = 0.5
+        [[2, 2, 2], [3, 2, 2], [2, 3, 2]],  # far away
+        [[-1, 0.5, 0.5], [-0.5, 0.5, 0.5], [-1, 0.9, 0.5]],  # beside the x = 0 face
+        [[1.5, 1.5, -1], [1.5, 1.5, 2], [3, 3, 0.5]],  # off the diagonal edge: only x+y separates
+        [[1.2, 0.5, 0.5], [0.5, 1.2, 0.5], [1.2, 1.2, 0.5]],  # cuts the box's vertical edge x = y = 1
+        [[0.2, 0.2, 0.2], [0.3, 0.2, 0.2], [0.2, 0.3, 0.2]],  # inside
+        [[-1, 0.5, 0.5], [2, 0.5, 0.5], [2, 0.5, 0.5]],  # degenerate: a segment straight through
+        [[-1, -1, 1.5], [2, -1, 1.5], [2, 2, 1.5]],  # a plane above the box, parallel to its top
+    ])
+    got = triangle_hits_box(tri[:, 0], tri[:, 1], tri[:, 2], lo, hi)
+    assert got.tolist() == [True, False, False, False, True, True, True, False]
+    # a segment (degenerate triangle) gives the slab test's answer (Ericson 2005, sec. 5.3.3)
+    rng = np.random.default_rng(3)
+    p, q = rng.uniform(-1, 2, (2, 2000, 3))
+    assert np.array_equal(triangle_hits_box(p, q, q, lo, hi), segment_hits_box(p, q, lo, hi))
+
+
+def test_grid_resolution_warns_on_a_coarse_grid_and_states_the_step():
+    d = load_design(GREENHOUSE)
+    need = 10  # practice.py grid_points_per_axis_min (common practice, no source)
+    fine = {c.key: c for c in design_checks(d, workspace=compute_workspace(d, step=0.05))}
+    assert fine["grid_resolution"].status == "pass" and fine["grid_resolution"].value >= need
+    coarse_ws = compute_workspace(d, step=0.2)
+    coarse = {c.key: c for c in design_checks(d, workspace=coarse_ws)}["grid_resolution"]
+    assert coarse.status == "warn" and coarse.value == 3 and coarse.limit == need  # y: 0.5..0.95 m by 0.2 m
+    assert "200 mm" in coarse.detail and "6 x 3 x 6" in coarse.detail
+    assert "grid step 200 mm, 6 x 3 x 6 points" in "\n".join(coarse_ws.summary())
+    # a box thinner than the step has one point along that axis: both faces unsampled, fail
+    thin = replace(d, task=replace(d.task, box_upper=(2.0, 0.55, 1.4)))
+    c = {c.key: c for c in design_checks(thin, workspace=compute_workspace(thin, step=0.1))}["grid_resolution"]
+    assert c.status == "fail" and c.value == 1
+    # the design's [practice] table may ask for more
+    strict = replace(d, practice={"grid_points_per_axis_min": 30})
+    assert {c.key: c for c in design_checks(strict, workspace=compute_workspace(strict))}[
+        "grid_resolution"].status == "warn"
+
+
+def test_obstacle_between_two_grid_nodes_is_found_on_the_move():
+    # Worked by hand: the cable from post A (0, 0, 2.4) to the platform at (1.0, 0.50, 1.0) passes
+    # (0.5, 0.25, 1.7) at half length, and to (1.0, 0.55, 1.0) it passes (0.5, 0.275, 1.7).  A small
+    # box around (0.5, 0.2625, 1.7), 10 mm wide, clears both straight cables (by 7.5 mm less the 1 mm
+    # radius along y at x = 0.5), but the cable sweeps across it on the 50 mm move between the nodes.
+    d = load_design(GREENHOUSE)
+    post = Obstacle(name="post", lower=(0.495, 0.2575, 1.695), upper=(0.505, 0.2675, 1.705))
+    d = replace(d, frame=replace(d.frame, obstacles=(post,)), sections={},
+                task=replace(d.task, box_lower=(1.0, 0.5, 1.0), box_upper=(1.0, 0.55, 1.0), points=(), step=0.05))
+    ws = compute_workspace(d, acceleration=0.0)
+    assert ws.n_poses == 2 and ws.sweep_moves == 1
+    assert not has(ws, "obstacle").any()  # the nodes alone pass
+    assert has(ws, "sweep").all() and not ws.feasible.any()
+    checks = {c.key: c for c in design_checks(d, workspace=ws)}
+    assert checks["cable_sweep"].status == "fail" and checks["cable_sweep"].value == 1
+    assert checks["cable_obstacle"].status == "pass"
+    # the same post moved 30 mm further out along y is clear on the move too
+    d2 = replace(d, frame=replace(d.frame, obstacles=(Obstacle(name="post", lower=(0.495, 0.2875, 1.695),
+                                                                upper=(0.505, 0.2975, 1.705)),)))
+    assert not has(compute_workspace(d2, acceleration=0.0), "sweep").any()
+
+
+def test_cables_touching_between_two_grid_nodes_are_found_on_the_move():
+    # B2 re-tied to (0.279, 0.087, 0.268) m on the sander: at two nodes 1 m apart along z, cables T3
+    # and B2 are 32 mm and 11 mm apart, but they touch on the way.  Reference: dense sampling of the
+    # move (2001 poses) with the closest points of segments (Ericson 2005, sec. 5.1.9).
+    d = load_design(SANDER)
+    att = np.array(d.platform.attachments)
+    att[5] = [0.279, 0.087, 0.268]
+    d = replace(d, sections={}, platform=replace(d.platform, attachments=tuple(map(tuple, att)),
+                                                 body_half_size=(0.0, 0.0, 0.0)),
+                task=replace(d.task, box_lower=(2.0, 1.5, 0.75), box_upper=(2.0, 1.5, 1.75), points=(),
+                             orientations=((0.0, 0.0, 0.0),), orientation_range=None, step=1.0))
+    ws = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    assert ws.n_poses == 2 and np.all(ws.clearance > 0.01) and not has(ws, "interference").any()
+    assert has(ws, "sweep").all()
+    s = np.linspace(0.0, 1.0, 2001)
+    p = np.column_stack([np.full_like(s, 2.0), np.full_like(s, 1.5), 0.75 + s])
+    a2, a5 = d.exits[2], d.exits[5]
+    gap = segment_distances(np.broadcast_to(a2, p.shape), p + att[2], np.broadcast_to(a5, p.shape), p + att[5])
+    assert gap[0] > 0.03 and gap[-1] > 0.01  # centre lines at the nodes
+    assert np.min(gap) < d.cable.diameter  # closer than the sum of the radii somewhere on the move
+    # without the sweep the two nodes would pass the geometry
+    assert not has(compute_workspace(d, acceleration=0.0, length_errors=0.0, sweep=False), "sweep").any()
+
+
+def test_new_fields_survive_the_result_file(tmp_path):
+    d = load_design(SANDER)
+    ws = compute_workspace(d, step=0.25)
+    path = tmp_path / "map.npz"
+    ws.save(path)
+    back = load_workspace(path)
+    for name in ("rest_margin", "length_spread", "length_error", "sweep_failures"):
+        assert np.array_equal(getattr(back, name), getattr(ws, name))
+    assert (back.acceleration, back.accel_overshoot, back.sweep_moves) == (ws.acceleration, ws.accel_overshoot,
+                                                                          ws.sweep_moves)
+    assert back.reasons.dtype == np.uint16 and back.summary() == ws.summary()
+
+
+def test_assumptions_name_what_the_verdict_rests_on():
+    from cablekit.checks import run_assumptions
+
+    d = load_design(SANDER)
+    ws = compute_workspace(d, step=0.25)
+    text = " ".join(run_assumptions(d, workspace=ws))
+    for phrase in ("0.5 m/s^2", "7.0 %", "Angular accelerations", "length-controlled", "orientation range",
+                   "grid step 250 mm", "moves between orientations are not swept"):
+        assert phrase in text
+    still = replace(d, task=replace(d.task, acceleration=0.0))
+    assert "quasi-static" in " ".join(design_assumptions(still))
