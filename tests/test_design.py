@@ -88,9 +88,9 @@ def test_uncontrollable_layout():
 
 
 def test_task_outside_frame():
-    probs = _problems(GOOD.replace('box_upper = "2.0, 1.2, 1.4 m"', 'box_upper = "4.1, 1.3, 1.4 m"'))
+    probs = _problems(GOOD.replace('box_upper = "2.0, 0.95, 1.4 m"', 'box_upper = "4.1, 1.3, 1.4 m"'))
     assert any(p.path == "task.box_upper" and "inside the frame" in p.expected for p in probs)
-    probs = _problems(GOOD.replace('box_upper = "2.0, 1.2, 1.4 m"', 'box_upper = "2.1, 1.3, 2.9 m"'))
+    probs = _problems(GOOD.replace('box_upper = "2.0, 0.95, 1.4 m"', 'box_upper = "2.1, 1.3, 2.9 m"'))
     assert any(p.path == "task.box_upper" for p in probs)
 
 
