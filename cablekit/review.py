@@ -1157,6 +1157,9 @@ def _render_inputs(design) -> str:
                      + (" …" if len(t.points) > 12 else "")))
     if d.dof == 6:
         trow.append(("orientations (roll, pitch, yaw)", "; ".join(_vec(o, "deg") for o in t.orientations)))
+        if t.orientation_range is not None:
+            trow.append(("orientation range (roll; pitch; yaw)", "; ".join(_vec(r, "deg") for r in t.orientation_range)
+                         + f", {t.orientation_samples} values per angle, every combination"))
     trow += [("grid step", _si(t.step, "mm")),
              ("highest speed", _si(t.speed, "m/s") if t.speed else "not given"),
              ("highest acceleration", _si(t.acceleration, "m/s^2") if t.acceleration

@@ -25,13 +25,15 @@ def _truth(d):
     return np.concatenate([np.r_[DA[i], DH[i], DD[i] / pitch[i]] for i in range(d.m)])
 
 
-def _poses(d, n, seed):
-    lo, hi = np.array(d.task.box_lower), np.array(d.task.box_upper)
+def _poses(d, n, seed, volume=None):
+    lo, hi = (np.array(d.task.box_lower), np.array(d.task.box_upper)) if volume is None else map(np.array, volume)
     return lo + (hi - lo) * np.random.default_rng(seed).uniform(0.05, 0.95, (n, 3))
 
 
 def test_noise_free_data_recover_the_perturbation_exactly(greenhouse):
-    meas = synthetic_measurements(greenhouse, _poses(greenhouse, 20, 1), exit_offsets=DA, home_offsets=DH,
+    # measured over the whole bench area (wider than the task box): well conditioned
+    benches = ((1.0, 0.5, 0.35), (2.0, 1.2, 1.4))
+    meas = synthetic_measurements(greenhouse, _poses(greenhouse, 20, 1, benches), exit_offsets=DA, home_offsets=DH,
                                   drum_offsets=DD, noise=0.0, seed=2)
     res = calibrate(greenhouse, meas)
     assert res.identified.all() and res.rank == 15

@@ -45,7 +45,10 @@ def summary_lines(d) -> tuple[list[str], list[str]]:
     if t.points:
         lines.append(f"  points   : {len(t.points)}")
     if d.dof == 6:
-        lines.append(f"  orientations: {len(t.orientations)}")
+        from ..region import task_orientations
+
+        lines.append(f"  orientations: {len(task_orientations(t))}"
+                     + (f" (list and a range, {t.orientation_samples} values per angle)" if t.orientation_range else ""))
     if d.frame.obstacles:
         lines.append("  obstacles: " + ", ".join(o.name for o in d.frame.obstacles))
     for name in d.sections:
