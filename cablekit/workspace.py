@@ -831,8 +831,8 @@ def load_workspace(path) -> WorkspaceResult:
     fmt = str(data.get("format", ""))
     if fmt != FORMAT:
         raise ValueError(f"{path}: expected a {FORMAT!r} file, found format {fmt or 'none'!r}")
-    missing = [k for k in (*_ARRAY_FIELDS, *_OPTIONAL_ARRAYS, "meta", "axis_x", "axis_y", "axis_z", "box_lower", "box_upper")
-               if k not in data]
+    missing = [k for k in (*_ARRAY_FIELDS, *_OPTIONAL_ARRAYS, "meta", "axis_x", "axis_y", "axis_z", "box_lower",
+                           "box_upper") if k not in data]
     if missing:
         raise ValueError(f"{path}: missing arrays {', '.join(missing)}")
     try:
@@ -977,7 +977,7 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
                 margin[worse] = rv.margin[worse]
                 act_lo[worse], act_hi[worse] = rv.active_lower[worse], rv.active_upper[worse]
                 lcable[worse] = rv.limiting_cable[worse]
-        rest = margin.copy() if not len(accels) else res.margin
+        rest = res.margin  # gravity, extra wrench and wrench box: no accelerations, no length errors
         rs = np.zeros(e - s, np.uint16)
         bad = margin < 0
         rs |= np.where(bad & ~np.isfinite(margin), REASON_BITS["no_solution"], 0).astype(np.uint16)
@@ -994,7 +994,7 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
             short = ~bad & (margin - worst < 0)
             rs |= np.where(short, REASON_BITS["length"], 0).astype(np.uint16)
             lcable = np.where(short, np.argmax(np.where(np.isfinite(sp), sp, np.inf), axis=1), lcable)
-            margin = margin - worst
+            margin = np.where(bad, margin, margin - worst)  # a failing pose keeps its own (worse) margin
         clearance, body, obstacle = _geometry(design, q, pairs)
         rs |= np.where(clearance < 0, REASON_BITS["interference"], 0).astype(np.uint16)
         rs |= np.where(body, REASON_BITS["body"], 0).astype(np.uint16)
@@ -1154,8 +1154,8 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
     a = t.acceleration if ws is None else ws.acceleration
     if a > 0:
         over = acceleration_polytope()[1] if ws is None else ws.accel_overshoot
-        out.append(f"Accelerations up to {a:g} m/s^2 in any direction: the inertial wrench -M a of platform, payload and "
-                   "arm (their masses lumped at their centres; for a rigid platform its moment through the combined "
+        out.append(f"Accelerations up to {a:g} m/s^2 in any direction: the inertial wrench -M a of platform, payload "
+                   "and arm (their masses lumped at their centres; for a rigid platform its moment through the combined "
                    "centre of mass) is added to gravity and the wrench box; the ball |a| <= a_max is enclosed in a "
                    f"polytope whose vertices reach {100 * (over - 1):.1f} % beyond a_max (conservative) and every "
                    "vertex is checked. Angular accelerations and velocities are not in the design file and are not "
@@ -1164,8 +1164,8 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
         out.append("task.acceleration is 0: the workspace map is quasi-static (no inertial loads are checked).")
     if m > n:
         dL = _length_errors(design) if ws is None or ws.length_error is None else ws.length_error
-        out.append(f"{m} cables for {n} degrees of freedom: the winches are taken to be length-controlled; length errors "
-                   f"up to +/-{np.max(dL) * 1e3:.2f} mm per cable (home length, quantisation and deadband of the "
+        out.append(f"{m} cables for {n} degrees of freedom: the winches are taken to be length-controlled; length "
+                   f"errors up to +/-{np.max(dL) * 1e3:.2f} mm per cable (home length, quantisation and deadband of the "
                    "[errors] budget) shift the tensions through the stiffness model (winches locked, cables EA/L, "
                    "first order); the largest shift of any cable is taken off each pose's margin (conservative). "
                    "Otherwise the verdict assumes the control realises the max-margin tension distribution for "

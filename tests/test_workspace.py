@@ -543,7 +543,8 @@ def test_orientation_range_is_sampled_at_every_bound_combination_and_inside():
     from cablekit.design import dumps_design, loads_design
 
     back = loads_design(dumps_design(d))
-    assert np.allclose(back.task.orientation_range, d.task.orientation_range, rtol=1e-12, atol=0)  # text repr round-trips
+    # the angles are written as repr text: they come back to the last bit
+    assert np.allclose(back.task.orientation_range, d.task.orientation_range, rtol=1e-12, atol=0)
     assert back.task.orientation_samples == 3
 
 

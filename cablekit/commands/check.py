@@ -47,8 +47,8 @@ def summary_lines(d) -> tuple[list[str], list[str]]:
     if d.dof == 6:
         from ..region import task_orientations
 
-        lines.append(f"  orientations: {len(task_orientations(t))}"
-                     + (f" (list and a range, {t.orientation_samples} values per angle)" if t.orientation_range else ""))
+        rng = f" (list and a range, {t.orientation_samples} values per angle)" if t.orientation_range else ""
+        lines.append(f"  orientations: {len(task_orientations(t))}{rng}")
     if d.frame.obstacles:
         lines.append("  obstacles: " + ", ".join(o.name for o in d.frame.obstacles))
     for name in d.sections:
