@@ -28,7 +28,7 @@ comes first: the tensions ``t - W^+ G a`` balance the accelerated load, so the m
 least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz; exact for m = n when the binding
 cable has the largest row); only poses where this bound falls below the warning level are solved
 on the polytope, and the larger of the two lower bounds is kept.  Poses that already fail at rest
-or for their length errors alone keep their rest margin.  Angular acceleration and velocity are
+keep the bound, those failing for their length errors alone their rest margin (less the spread).  Angular acceleration and velocity are
 not in the design file and not included.
 
 Length errors on redundant rigs (m > n)
@@ -1004,10 +1004,11 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
             # a lower bound for the whole ball first; the polytope only where the bound comes near a verdict
             bound = res.margin - a_max * _accel_bound(W, G)
             # a pose failing at rest, or for its length errors alone, fails whatever the accelerations
-            # add: it keeps its rest margin and reasons
+            # add: no polytope (the first keeps the bound and its rest reasons, the second its rest
+            # margin so that the length step below names it)
             settled = res.margin - worst < 0
             near = np.flatnonzero((bound - worst < near_level) & ~settled)
-            margin = np.where(settled, res.margin, bound)
+            margin = np.where(settled & (res.margin >= 0), res.margin, bound)
             if len(near):
                 Wn, wn, Gn = W[near], (w_g + extra)[near], G[near]
                 poly = res.margin[near].copy()

@@ -717,3 +717,29 @@ def test_assumptions_name_what_the_verdict_rests_on():
         assert phrase in text
     still = replace(d, task=replace(d.task, acceleration=0.0))
     assert "quasi-static" in " ".join(design_assumptions(still))
+
+
+def test_acceleration_margins_are_never_more_optimistic_than_sampled_accelerations():
+    # Brute force: 400 accelerations of size a_max spread over the sphere, each solved exactly
+    # (cablekit.tension.distribute, held to scipy's LP in test_tension.py).  The map's margin is a
+    # lower bound of the margin over the ball, so it may not exceed any sampled one; and every pose it
+    # passes must pass every sample.
+    from cablekit.stiffness import mass_matrix
+    from cablekit.tension import distribute
+
+    d = load_design(SANDER)
+    ws = compute_workspace(d, step=0.35, acceleration=2.0, length_errors=0.0, sweep=False)
+    q = ws.poses
+    W, w = structure_matrix(d, q), external_wrench(d, q)
+    G = mass_matrix(d, q)[:, :, :3]
+    lim = tension_limits(d)
+    dirs = np.random.default_rng(11).normal(size=(400, 3))
+    dirs /= np.linalg.norm(dirs, axis=1)[:, None]
+    sampled = np.full(len(q), np.inf)
+    for a in 2.0 * dirs:
+        sampled = np.minimum(sampled, distribute(W, w - G @ a, lim.t_min, lim.t_max,
+                                                 wrench_box=d.task.wrench_box).margin)
+    tension_ok = ws.margin >= 0
+    assert np.all(ws.margin <= sampled + 1e-7)
+    assert np.all(sampled[tension_ok] >= -1e-7)
+    assert 0 < tension_ok.sum() < len(q)  # the case has both verdicts
