@@ -287,6 +287,8 @@ def test_command_runs_on_every_demo(demo, tmp_path, capsys):
     (["--step", "20"], "missing unit"),
     (["--orientations", " ; "], "orientation set is empty"),
     (["-o", "/nonexistent-folder/x.npz"], "does not exist"),
+    (["--acceleration", "-1 m/s^2"], "zero or more"),
+    (["--acceleration", "1 m/s"], "--acceleration"),
 ])
 def test_command_bad_input_exits_3(args, message, capsys):
     rc = main(["workspace", str(SANDER), *args])
@@ -743,3 +745,11 @@ def test_acceleration_margins_are_never_more_optimistic_than_sampled_acceleratio
     assert np.all(ws.margin <= sampled + 1e-7)
     assert np.all(sampled[tension_ok] >= -1e-7)
     assert 0 < tension_ok.sum() < len(q)  # the case has both verdicts
+
+
+def test_command_quasi_static_option(capsys):
+    assert main(["workspace", str(GREENHOUSE), "--step", "150 mm", "--acceleration", "0 m/s^2", "--quiet"]) == 0
+    text = capsys.readouterr().out
+    assert "accelerations" not in text and "grid step 150 mm" in text
+    assert main(["workspace", str(GREENHOUSE), "--step", "150 mm", "--quiet"]) == 0
+    assert "accelerations up to 0.5 m/s^2" in capsys.readouterr().out

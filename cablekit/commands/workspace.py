@@ -16,7 +16,9 @@ NAME = "workspace"
 HELP = "map where the platform can hold its load over the task region"
 DESCRIPTION = ("Samples the task box (and task points) of the design, in every orientation of the set for rigid "
                "platforms, and classifies each pose: feasible, or why not (a slack cable, over the rope or motor "
-               "limit, cables touching, a cable through the platform body or an obstacle). Prints a summary; "
+               "limit, cables touching, a cable through the platform body or an obstacle, length errors on "
+               "redundant rigs, contact on a move between grid nodes) under gravity, the task's wrench box and "
+               "every acceleration up to task.acceleration. Prints a summary; "
                "-o writes every pose to a .npz result file (see cablekit.workspace for its keys).")
 
 
@@ -26,6 +28,9 @@ def add_arguments(p) -> None:
     p.add_argument("--orientations", metavar="LIST",
                    help="rigid platforms: roll, pitch, yaw sets separated by ';', e.g. '0, 0, 0 deg; 0, 10, 0 deg' "
                         "(default: the design's task.orientations)")
+    p.add_argument("--acceleration", metavar="ACCELERATION",
+                   help="largest acceleration in any direction with a unit, e.g. '0.5 m/s^2'; '0 m/s^2' gives the "
+                        "quasi-static map (default: the design's task.acceleration)")
     p.add_argument("-o", "--output", metavar="RESULT.npz", help="write the per-pose result here")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
@@ -82,13 +87,14 @@ def run(args) -> int:
 
     d = load_design(args.design)
     step = option_quantity(args.step, "length", "--step")
+    acc = option_quantity(args.acceleration, "acceleration", "--acceleration", positive=False)
     oris = _orientations(args.orientations, d)
     out = Path(args.output) if args.output else None
     if out is not None and not out.parent.is_dir() and str(out.parent):
         raise InputError(f"-o: folder {str(out.parent)!r} does not exist")
     bar = None if args.quiet else _Bar()
     try:
-        ws = compute_workspace(d, step=step, orientations=oris, progress=bar)
+        ws = compute_workspace(d, step=step, orientations=oris, acceleration=acc, progress=bar)
     except ValueError as exc:
         raise InputError(str(exc)) from None
     print("\n".join(ws.summary()))
