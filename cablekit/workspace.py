@@ -250,9 +250,18 @@ def triangle_hits_box(v0, v1, v2, lower, upper) -> np.ndarray:
     ``v0``, ``v1``, ``v2`` (..., 3) [m]; ``lower``, ``upper`` broadcastable (..., 3) [m].
     Separating-axis test on the 13 axes (3 box normals, the triangle normal, 9 edge x box-axis
     products; Akenine-Moller 2001).  A degenerate triangle (a segment or a point) works too: its
-    zero axes separate nothing and the remaining ones are the segment's full set.
+    zero axes separate nothing and the remaining ones are the segment's full set.  Triangles whose
+    bounding box misses the box are rejected first (cheap), the full test runs on the rest.
     """
     v0, v1, v2, lo, hi = np.broadcast_arrays(*(np.asarray(v, float) for v in (v0, v1, v2, lower, upper)))
+    cand = np.all((np.minimum(np.minimum(v0, v1), v2) <= hi) & (np.maximum(np.maximum(v0, v1), v2) >= lo), axis=-1)
+    out = np.zeros(cand.shape, bool)
+    if np.any(cand):
+        out[cand] = _triangle_sat(v0[cand], v1[cand], v2[cand], lo[cand], hi[cand])
+    return out
+
+
+def _triangle_sat(v0, v1, v2, lo, hi) -> np.ndarray:
     c = 0.5 * (lo + hi)
     h = 0.5 * (hi - lo)
     a, b, d = v0 - c, v1 - c, v2 - c
@@ -323,9 +332,10 @@ def length_error_spread(design, poses, tensions, errors) -> np.ndarray:
     k = ps.cable_stiffness
     WK = W * k[:, None, :]  # W K_c (N, n, m)
     K = ps.total
-    det_ok = np.abs(np.linalg.det(K)) > 0
-    cond_ok = np.linalg.cond(np.where(det_ok[:, None, None], K, np.eye(K.shape[1]))) < 1e12
-    ok = det_ok & cond_ok
+    # a stiffness matrix that is singular, or nearly so, gives no bound: inf (checked on its determinant
+    # against the product of its diagonal, cheaper than a condition number per pose)
+    scale = np.prod(np.abs(np.diagonal(K, axis1=1, axis2=2)), axis=1)
+    ok = np.abs(np.linalg.det(K)) > 1e-12 * np.maximum(scale, 1e-300)
     X = np.linalg.solve(np.where(ok[:, None, None], K, np.eye(K.shape[1])), WK)  # K^-1 W K_c
     S = k[:, :, None] * np.eye(design.m) - np.swapaxes(WK, 1, 2) @ X
     delta = np.broadcast_to(np.asarray(errors, float), t.shape)[good]
