@@ -28,8 +28,8 @@ comes first: the tensions ``t - W^+ G a`` balance the accelerated load, so the m
 least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz; exact for m = n when the binding
 cable has the largest row); only poses where this bound falls below the warning level are solved
 on the polytope, and the larger of the two lower bounds is kept.  Poses that already fail at rest
-keep the bound, those failing for their length errors alone their rest margin (less the spread).  Angular acceleration and velocity are
-not in the design file and not included.
+keep the bound, those failing for their length errors alone their rest margin (less the spread).
+Angular acceleration and velocity are not in the design file and not included.
 
 Length errors on redundant rigs (m > n)
 ---------------------------------------
@@ -57,7 +57,9 @@ neighbouring nodes of the box grid (each orientation): cable pairs by bisection 
 Lipschitz bound (a cable point moves at most as far as the platform, so the gap changes by at
 most ``2 |dp|`` along a move: a span whose end gaps sum to more than that is clear), cables
 against obstacles and the platform body exactly, on the triangle each cable sweeps
-(Akenine-Moller 2001, separating axes).  A **position** is covered when every orientation of the set is feasible there.
+(Akenine-Moller 2001, separating axes).
+
+A **position** is covered when every orientation of the set is feasible there.
 The **static workspace** uses gravity alone as the load (no wrench box, no extra wrench);
 for a suspended rig (every exit above the task region) it is the classic static workspace.
 
@@ -371,11 +373,7 @@ def _geometry(design, q, pairs):
     radius = 0.5 * design.cable.diameter
     clearance = np.full(N, np.inf)
     if pairs:
-        I = np.array([p[0] for p in pairs])
-        J = np.array([p[1] for p in pairs])
-        dist = segment_distances(att[:, I], np.broadcast_to(a[I], att[:, I].shape),
-                                 att[:, J], np.broadcast_to(a[J], att[:, J].shape))
-        clearance = np.min(dist, axis=1) - 2 * radius
+        clearance = np.min(_pair_clearance(design, att, *_pair_index(pairs), radius), axis=1)
     body = np.zeros(N, bool)
     half = np.asarray(design.platform.body_half_size, float)
     if design.dof == 6 and np.all(half > 0):
@@ -413,6 +411,11 @@ def _grid_moves(grid, K: int) -> np.ndarray:
     return np.column_stack([(pos[:, 0, None] * K + k).ravel(), (pos[:, 1, None] * K + k).ravel()])
 
 
+def _pair_index(pairs):
+    """Index arrays (I, J) of the cable pairs."""
+    return np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
+
+
 def _pair_clearance(design, att, I, J, radius):
     """(c, pairs) clearance of cable pairs for attachment points att (c, m, 3)."""
     a = design.exits
@@ -448,8 +451,7 @@ def _sweep_hits(design, qa, qb, pairs) -> np.ndarray:
                                         half - shrink), axis=1)
     if not pairs:
         return hit
-    I = np.array([p[0] for p in pairs])
-    J = np.array([p[1] for p in pairs])
+    I, J = _pair_index(pairs)
     c0 = _pair_clearance(design, att_a, I, J, radius)
     c1 = _pair_clearance(design, att_b, I, J, radius)
     D = 2.0 * np.linalg.norm(pb - pa, axis=1)  # the gap changes at most this much over the move
