@@ -24,9 +24,9 @@ whose faces touch the ball, vertices 7.0 % outside it), so the check is conserva
 margin is concave in the load, so its least value over (polytope + wrench box) is at a vertex
 (Bosscher, Riechel and Ebert-Uphoff 2006): every polytope vertex is solved with the wrench box
 around it.  To spare that work where it cannot change a verdict, a bound for the whole ball
-comes first: the tensions ``t - W^+ G a`` balance the accelerated load, so the margin is at
-least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz; exact for m = n when the binding
-cable has the largest row); only poses where this bound falls below the warning level are solved
+comes first: the tensions ``t + W^+ G a`` balance the accelerated load ``w - G a``, so the
+margin is at least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz; exact for m = n when
+the binding cable has the largest row); only poses where this bound falls below the warning level are solved
 on the polytope, and the larger of the two lower bounds is kept.  Poses that already fail at rest
 keep the bound, those failing for their length errors alone their rest margin (less the spread).
 Angular acceleration and velocity are not in the design file and not included.
@@ -482,7 +482,7 @@ def _sweep_hits(design, qa, qb, pairs) -> np.ndarray:
     return hit
 
 
-def _sweeps(design, grid, K, node_bad, pairs, progress=None):
+def _sweeps(design, grid, K, node_bad, pairs):
     """Check every move between neighbouring grid nodes whose ends are clear.
 
     Returns (per-pose mask of poses on a failing move, moves checked, failing moves (F, 2))."""
@@ -495,8 +495,6 @@ def _sweeps(design, grid, K, node_bad, pairs, progress=None):
         h = _sweep_hits(design, grid.poses[mv[:, 0]], grid.poses[mv[:, 1]], pairs)
         bad[mv[h].ravel()] = True
         failed.append(mv[h])
-        if progress is not None:
-            progress(min(len(moves), s + _SWEEP_CHUNK), len(moves))
     failed = np.vstack(failed) if failed else np.zeros((0, 2), np.int64)
     return bad, len(moves), failed
 
@@ -552,14 +550,12 @@ class WorkspaceResult:
         return None if self.axes is None else tuple(len(a) for a in self.axes)
 
     def max_length_spread(self) -> np.ndarray:
-        """(m,) the largest tension spread from length errors of each cable over the poses whose
-        spread is finite [N] (zeros for m = n or without length errors)."""
+        """(m,) the largest tension spread from length errors of each cable over the poses [N]
+        (zeros for m = n or without length errors; inf where a pose's stiffness is singular)."""
         sp = self.length_spread
         if sp is None or not sp.size:
             return np.zeros(len(self.cable_names))
-        fin = np.where(np.isfinite(sp), sp, -np.inf)
-        out = np.max(fin, axis=0)
-        return np.where(np.isfinite(out), out, 0.0)
+        return np.max(sp, axis=0)
 
     # -- derived views ------------------------------------------------------------------
     @property
@@ -891,7 +887,7 @@ def _suspended(design, positions) -> bool:
 def _accel_bound(W, G) -> np.ndarray:
     """(c,) ``max_i |row_i(W^+ G)|`` [N per m/s**2]: the margin lost to any acceleration of unit size.
 
-    If ``t`` balances the load ``w`` with margin ``s``, then ``t - W^+ G a`` balances ``w - G a``
+    If ``t`` balances the load ``w`` with margin ``s``, then ``t + W^+ G a`` balances ``w - G a``
     (``W W^+ = I`` for a full-rank ``W``), so the margin under every ``|a| <= a_max`` is at least
     ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz): a lower bound for the whole ball.
     Rank-deficient poses get ``inf`` (no bound).
