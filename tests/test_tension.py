@@ -49,7 +49,7 @@ def margins(d, q, backend="auto", box=None):
 def near_boundary(d, rng, count, backend="auto"):
     """Poses whose exact margin is a chosen value within 0.1 N of zero (bisection along segments
     from a feasible to an infeasible pose; the margin is continuous in the pose)."""
-    q = random_poses(d, 40 * count, rng)
+    q = random_poses(d, 80 * count, rng)  # enough infeasible poses also for a small task box
     ok = margins(d, q, backend).feasible
     a = q[ok][:count]
     b = q[~ok][:count]
