@@ -265,6 +265,13 @@ def test_bad_inputs_raise_clear_errors():
         compute_workspace(empty)
     with pytest.raises(ValueError, match="extra wrench"):
         compute_workspace(d, extra_wrench=[1.0, 2.0])
+    for bad in (-1.0, float("nan"), float("inf")):
+        with pytest.raises(ValueError, match="acceleration"):
+            compute_workspace(d, acceleration=bad)
+    with pytest.raises(ValueError, match="length errors"):
+        compute_workspace(d, length_errors=-1e-3)
+    with pytest.raises(ValueError, match="length errors"):
+        compute_workspace(d, length_errors=[1e-3] * 7 + [float("nan")])
 
 
 # --------------------------------------------------------------------------------------
@@ -753,3 +760,8 @@ def test_command_quasi_static_option(capsys):
     assert "accelerations" not in text and "grid step 150 mm" in text
     assert main(["workspace", str(GREENHOUSE), "--step", "150 mm", "--quiet"]) == 0
     assert "accelerations up to 0.5 m/s^2" in capsys.readouterr().out
+
+
+def test_check_command_counts_the_orientation_range(capsys):
+    assert main(["check", str(SANDER)]) == 0
+    assert "orientations: 10 (list and a range, 3 values per angle)" in capsys.readouterr().out
