@@ -57,7 +57,10 @@ neighbouring nodes of the box grid (each orientation): cable pairs by bisection 
 Lipschitz bound (a cable point moves at most as far as the platform, so the gap changes by at
 most ``2 |dp|`` along a move: a span whose end gaps sum to more than that is clear), cables
 against obstacles and the platform body exactly, on the triangle each cable sweeps
-(Akenine-Moller 2001, separating axes).
+(Akenine-Moller 2001, separating axes).  With an orientation range, the turns between
+neighbouring orientations of its grid (at every position) are swept too, by bisection on the
+same kind of bound (the attachment moves at most ``|b_i|`` times the summed angle changes):
+cable pairs and obstacles; the platform body is not checked on turns.
 
 A **position** is covered when every orientation of the set is feasible there.
 The **static workspace** uses gravity alone as the load (no wrench box, no extra wrench);
@@ -482,17 +485,121 @@ def _sweep_hits(design, qa, qb, pairs) -> np.ndarray:
     return hit
 
 
-def _sweeps(design, grid, K, node_bad, pairs):
-    """Check every move between neighbouring grid nodes whose ends are clear.
+def _orientation_neighbours(oris, orientation_range, samples) -> np.ndarray:
+    """(E, 2) indices of orientations one range step apart in exactly one angle (both on the range
+    grid of ``task.orientation_range``); empty without a range."""
+    if orientation_range is None or len(oris) < 2:
+        return np.zeros((0, 2), np.int64)
+    lo = np.array([r[0] for r in orientation_range])
+    hi = np.array([r[1] for r in orientation_range])
+    step = (hi - lo) / (samples - 1)
+    tol = 1e-9 * max(1.0, float(np.max(np.abs(hi))))
+    idx = np.where(step > 0, (oris - lo) / np.where(step > 0, step, 1.0), 0.0)
+    on = np.all((np.abs(idx - np.round(idx)) * np.where(step > 0, step, 0.0) <= tol) & (oris >= lo - tol)
+                & (oris <= hi + tol), axis=1)
+    cand = np.flatnonzero(on)
+    g = np.round(idx[cand]).astype(np.int64)
+    diff = np.abs(g[:, None, :] - g[None, :, :])
+    i, j = np.nonzero((np.sum(diff, axis=2) == 1) & (np.arange(len(cand))[:, None] < np.arange(len(cand))[None, :]))
+    return np.column_stack([cand[i], cand[j]])
+
+
+def _turn_hits(design, qa, qb, pairs) -> np.ndarray:
+    """(c,) True where a move qa -> qb that turns the platform (angles interpolated linearly) brings
+    cables into contact with each other or an obstacle.
+
+    Bisection on a Lipschitz bound: over a span of the move, attachment i moves at most
+    ``|dp| + |b_i| (|d roll| + |d pitch| + |d yaw|)`` times the span (each Euler angle turns the
+    platform about a unit axis), and every point of the cable at most as far.  A cable pair is
+    clear on a span when its end gaps sum to more than the two cables' motion over it; a cable is
+    clear of a box on a span when the cable at the span's middle misses the box grown by half that
+    motion.  Spans not cleared after ``SWEEP_DEPTH`` halvings count as contact (conservative).
+    """
+    c = len(qa)
+    a = design.exits
+    b = design.attachments
+    radius = 0.5 * design.cable.diameter
+    dq = qb - qa
+    motion = (np.linalg.norm(dq[:, :3], axis=1)[:, None]
+              + np.linalg.norm(b, axis=1)[None, :] * np.sum(np.abs(dq[:, 3:]), axis=1)[:, None])  # (c, m)
+
+    def att(rows, s):
+        q = qa[rows] + s[:, None] * dq[rows]
+        return q[:, None, :3] + np.einsum("nij,mj->nmi", rotation_matrices(q[:, 3:]), b)
+
+    hit = np.zeros(c, bool)
+    ends = (att(np.arange(c), np.zeros(c)), att(np.arange(c), np.ones(c)))
+    # cable pairs
+    if pairs:
+        I, J = _pair_index(pairs)
+        c0 = _pair_clearance(design, ends[0], I, J, radius)
+        c1 = _pair_clearance(design, ends[1], I, J, radius)
+        hit |= np.any((c0 < 0) | (c1 < 0), axis=1)
+        D = motion[:, I] + motion[:, J]
+        e, k = np.nonzero((c0 + c1 < D) & ~hit[:, None])
+        s0, s1, g0, g1 = np.zeros(len(e)), np.ones(len(e)), c0[e, k], c1[e, k]
+        for _ in range(SWEEP_DEPTH):
+            keep = ~hit[e]
+            e, k, s0, s1, g0, g1 = e[keep], k[keep], s0[keep], s1[keep], g0[keep], g1[keep]
+            if not len(e):
+                break
+            sm = 0.5 * (s0 + s1)
+            pt = att(e, sm)
+            r = np.arange(len(e))
+            gm = segment_distances(pt[r, I[k]], a[I[k]], pt[r, J[k]], a[J[k]]) - 2 * radius
+            hit[e[gm < 0]] = True
+            half_len = 0.5 * (s1 - s0) * D[e, k]
+            left = (gm >= 0) & (g0 + gm < half_len)
+            right = (gm >= 0) & (gm + g1 < half_len)
+            e, k = np.concatenate([e[left], e[right]]), np.concatenate([k[left], k[right]])
+            s0, s1 = np.concatenate([s0[left], sm[right]]), np.concatenate([sm[left], s1[right]])
+            g0, g1 = np.concatenate([g0[left], gm[right]]), np.concatenate([gm[left], g1[right]])
+        hit[e] = True
+    # obstacles
+    for ob in design.frame.obstacles:
+        lo, hi = np.asarray(ob.lower) - radius, np.asarray(ob.upper) + radius
+        e, i = np.nonzero(np.ones((c, design.m), bool) & ~hit[:, None])
+        s0, s1 = np.zeros(len(e)), np.ones(len(e))
+        for _ in range(SWEEP_DEPTH + 1):
+            keep = ~hit[e]
+            e, i, s0, s1 = e[keep], i[keep], s0[keep], s1[keep]
+            if not len(e):
+                break
+            sm = 0.5 * (s0 + s1)
+            pt = att(e, sm)[np.arange(len(e)), i]
+            hit[e[segment_hits_box(a[i], pt, lo, hi)]] = True
+            grow = (0.5 * (s1 - s0) * motion[e, i])[:, None]
+            near = segment_hits_box(a[i], pt, lo - grow, hi + grow) & ~hit[e]
+            e, i = np.concatenate([e[near], e[near]]), np.concatenate([i[near], i[near]])
+            s0, s1 = np.concatenate([s0[near], sm[near]]), np.concatenate([sm[near], s1[near]])
+        hit[e] = True
+    return hit
+
+
+def _sweeps(design, grid, K, node_bad, pairs, turns=None):
+    """Check every move between neighbouring grid nodes whose ends are clear: along x, y, z at each
+    orientation, and (``turns``: (E, 2) orientation indices) between neighbouring orientations of the
+    range at each position.
 
     Returns (per-pose mask of poses on a failing move, moves checked, failing moves (F, 2))."""
     moves = _grid_moves(grid, K)
-    moves = moves[~(node_bad[moves[:, 0]] | node_bad[moves[:, 1]])]
+    n_shift = len(moves)
+    if turns is not None and len(turns):
+        P = len(grid.positions)
+        base = np.arange(P)[:, None] * K
+        moves = np.vstack([moves, np.column_stack([(base + turns[:, 0]).ravel(), (base + turns[:, 1]).ravel()])])
+    shift = np.arange(len(moves)) < n_shift
+    ok = ~(node_bad[moves[:, 0]] | node_bad[moves[:, 1]])
+    moves, shift = moves[ok], shift[ok]
     bad = np.zeros(len(node_bad), bool)
     failed = []
     for s in range(0, len(moves), _SWEEP_CHUNK):
-        mv = moves[s:s + _SWEEP_CHUNK]
-        h = _sweep_hits(design, grid.poses[mv[:, 0]], grid.poses[mv[:, 1]], pairs)
+        mv, sh = moves[s:s + _SWEEP_CHUNK], shift[s:s + _SWEEP_CHUNK]
+        h = np.zeros(len(mv), bool)
+        if np.any(sh):
+            h[sh] = _sweep_hits(design, grid.poses[mv[sh, 0]], grid.poses[mv[sh, 1]], pairs)
+        if np.any(~sh):
+            h[~sh] = _turn_hits(design, grid.poses[mv[~sh, 0]], grid.poses[mv[~sh, 1]], pairs)
         bad[mv[h].ravel()] = True
         failed.append(mv[h])
     failed = np.vstack(failed) if failed else np.zeros((0, 2), np.int64)
@@ -650,8 +757,8 @@ class WorkspaceResult:
                          "shift tensions by up to " + ", ".join(f"{n} {v:.1f} N" for n, v in zip(self.cable_names, sp)))
         if self.sweep_moves:
             nf = 0 if self.sweep_failures is None else len(self.sweep_failures)
-            lines.append(f"  moves    : {self.sweep_moves:,} moves between neighbouring nodes checked for contact, "
-                         f"{nf:,} fail")
+            lines.append(f"  moves    : {self.sweep_moves:,} moves between neighbouring nodes (shifts, and turns within "
+                         f"the orientation range) checked for contact, {nf:,} fail")
         pf = self.position_feasible
         lines.append(f"  covered  : {int(pf.sum()):,} of {P:,} task positions ({100 * self.coverage:.1f} %)")
         if self.box_lower is not None:
@@ -1064,8 +1171,12 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
             progress(e, N)
     K = len(grid.orientation_index) // max(len(grid.positions), 1)
     n_moves, failed = 0, np.zeros((0, 2), np.int64)
-    if sweep and grid.shape is not None:
-        moved, n_moves, failed = _sweeps(design, grid, K, out["geom_bad"], pairs)
+    turns = None
+    if n == 6 and orientations is None:
+        turns = _orientation_neighbours(task_orientations(design.task), design.task.orientation_range,
+                                        design.task.orientation_samples)
+    if sweep and (grid.shape is not None or (turns is not None and len(turns))):
+        moved, n_moves, failed = _sweeps(design, grid, K, out["geom_bad"], pairs, turns)
         out["reasons"] |= np.where(moved, REASON_BITS["sweep"], 0).astype(np.uint16)
         out["static_ok"] &= ~moved
     method = "; ".join(sorted(methods))
@@ -1238,8 +1349,9 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
         ppa = ws.points_per_axis
         out.append(f"Sampling: grid step {ws.step * 1e3:g} mm, {ppa[0]} x {ppa[1]} x {ppa[2]} points along x, y, z; "
                    "tensions are judged at the nodes only; contact is checked at the nodes and on the straight moves "
-                   "between neighbouring nodes at each sampled orientation (moves between orientations are not "
-                   "swept).")
+                   "between neighbouring nodes at each sampled orientation; turns between neighbouring orientations "
+                   "of the range are swept for cable pairs and obstacles, not for the platform body; moves to or "
+                   "from the listed orientations and diagonal moves are not swept.")
     elif t.box_lower is None:
         out.append("Sampling: task points only; nothing between the points is checked.")
     out.append("Cables are straight and massless with fixed exit points in the workspace map (sag is judged in the "

@@ -722,7 +722,7 @@ def test_assumptions_name_what_the_verdict_rests_on():
     ws = compute_workspace(d, step=0.25)
     text = " ".join(run_assumptions(d, workspace=ws))
     for phrase in ("0.5 m/s^2", "7.0 %", "Angular accelerations", "length-controlled", "orientation range",
-                   "grid step 250 mm", "moves between orientations are not swept"):
+                   "grid step 250 mm", "not for the platform body", "diagonal moves are not swept"):
         assert phrase in text
     still = replace(d, task=replace(d.task, acceleration=0.0))
     assert "quasi-static" in " ".join(design_assumptions(still))
@@ -765,3 +765,67 @@ def test_command_quasi_static_option(capsys):
 def test_check_command_counts_the_orientation_range(capsys):
     assert main(["check", str(SANDER)]) == 0
     assert "orientations: 10 (list and a range, 3 values per angle)" in capsys.readouterr().out
+
+
+def _one_point_turn(d, p, orientation_range, orientations, obstacles=None):
+    """The design at one task point with an orientation range sampled at its two bounds."""
+    task = replace(d.task, box_lower=None, box_upper=None, points=(tuple(p),), orientations=orientations,
+                   orientation_range=orientation_range, orientation_samples=2)
+    frame = d.frame if obstacles is None else replace(d.frame, obstacles=obstacles)
+    return replace(d, task=task, frame=frame, sections={})
+
+
+def _dense_turn(d, p, qa, qb, count=801):
+    """Attachment points (count, m, 3) along the turn qa -> qb at position p (angles linear)."""
+    from cablekit.statics import rotation_matrices
+
+    s = np.linspace(0.0, 1.0, count)
+    ang = qa + s[:, None] * (qb - qa)
+    return np.asarray(p)[None, None, :] + np.einsum("nij,mj->nmi", rotation_matrices(ang), d.attachments)
+
+
+def test_cables_touching_while_the_platform_turns_between_sampled_orientations():
+    # The sander at (1.6, 1.2, 1.3) m tilted (-10, -10, 0) deg and (0, -10, 0) deg, the two bounds of a
+    # roll range: every cable pair is clear at both (least gaps 6.5 mm and 31 mm), but turning between
+    # them T2 and T3 pass through each other.  Reference: 801 orientations along the turn with the
+    # closest points of segments (Ericson 2005, sec. 5.1.9).
+    deg = np.pi / 180
+    d = _one_point_turn(load_design(SANDER), (1.6, 1.2, 1.3), ((-10 * deg, 0.0), (-10 * deg, -10 * deg), (0.0, 0.0)),
+                        ((-10 * deg, -10 * deg, 0.0),))
+    ws = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    assert ws.n_poses == 2 and ws.sweep_moves == 1
+    assert np.all(ws.clearance > 0.005) and not has(ws, "interference").any()
+    assert has(ws, "sweep").all()
+    att = _dense_turn(d, (1.6, 1.2, 1.3), ws.poses[0, 3:], ws.poses[1, 3:])
+    a = d.exits
+    gap = segment_distances(att[:, 1], np.broadcast_to(a[1], att[:, 1].shape), att[:, 2],
+                            np.broadcast_to(a[2], att[:, 2].shape))
+    assert gap[0] > d.cable.diameter and gap[-1] > d.cable.diameter and np.min(gap) < d.cable.diameter
+
+
+def test_an_obstacle_the_cable_sweeps_while_the_platform_turns():
+    # Worked by hand: cable B1 at the pose (2.0, 1.5, 1.25) m, level, passes its midpoint
+    # (0.925, 0.825, 0.575) m; tilted -10 or +10 deg about x the attachment moves about 36 mm and the
+    # cable passes 11.2 mm and 11.7 mm from that point.  A 4 mm cube there is clear at both bounds
+    # of the roll range but in the cable's way at roll 0, between them.  Reference: the slab test
+    # (Ericson 2005, sec. 5.3.3) on 801 orientations along the turn.
+    deg = np.pi / 180
+    d0 = load_design(SANDER)
+    p = np.array([2.0, 1.5, 1.25])
+    mid = 0.5 * (d0.exits[4] + p + np.array(d0.attachments[4]))
+    assert mid == pytest.approx([0.925, 0.825, 0.575])
+    lamp = Obstacle(name="lamp", lower=tuple(mid - 0.002), upper=tuple(mid + 0.002))
+    d = _one_point_turn(d0, p, ((-10 * deg, 10 * deg), (0.0, 0.0), (0.0, 0.0)), ((-10 * deg, 0.0, 0.0),),
+                        obstacles=(lamp,))
+    ws = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    assert ws.n_poses == 2 and ws.sweep_moves == 1
+    assert not has(ws, "obstacle").any() and has(ws, "sweep").all()
+    att = _dense_turn(d, p, ws.poses[0, 3:], ws.poses[1, 3:])
+    r = 0.5 * d.cable.diameter
+    hits = segment_hits_box(np.broadcast_to(d.exits[4], att[:, 4].shape), att[:, 4], mid - 0.002 - r, mid + 0.002 + r)
+    assert not hits[0] and not hits[-1] and hits.any()
+    # moved 30 mm aside the lamp is clear on the turn as well
+    aside = Obstacle(name="lamp", lower=tuple(mid + [0, 0.03, 0] - 0.002), upper=tuple(mid + [0, 0.03, 0] + 0.002))
+    d2 = _one_point_turn(d0, p, ((-10 * deg, 10 * deg), (0.0, 0.0), (0.0, 0.0)), ((-10 * deg, 0.0, 0.0),),
+                         obstacles=(aside,))
+    assert not has(compute_workspace(d2, acceleration=0.0, length_errors=0.0), "sweep").any()
