@@ -1270,18 +1270,18 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
             "fewer than 2 fails (the box's faces are not both sampled)",
             f"grid step {ws.step * 1e3:g} mm: {ppa[0]} x {ppa[1]} x {ppa[2]} points along x, y, z; tensions are judged "
             "at the nodes only"))
-        nf = 0 if ws.sweep_failures is None else len(ws.sweep_failures)
+    nf = 0 if ws.sweep_failures is None else len(ws.sweep_failures)
+    if ws.sweep_moves or nf:
         margin, status = judge(float(nf), 0.0, upper=True)
         where = (f"first between {ws._pose_text(int(ws.sweep_failures[0, 0]))} and "
                  f"{ws._pose_text(int(ws.sweep_failures[0, 1]))}") if nf else \
             f"all {ws.sweep_moves:,} moves between neighbouring clear nodes are clear"
-        if ws.sweep_moves or nf:
-            checks.append(Check(
-                "cable_sweep", "cables", "Cables clear on the moves between grid nodes",
-                float(nf), 0.0, "moves", margin, status,
-                "geometry: cable pairs by Lipschitz-bounded bisection, obstacles and body on the swept triangles "
-                "(Akenine-Moller 2001, separating axes); common practice, no source, that running cables must not "
-                "touch", where))
+        checks.append(Check(
+            "cable_sweep", "cables", "Cables clear on the moves between grid nodes",
+            float(nf), 0.0, "moves", margin, status,
+            "geometry: cable pairs by Lipschitz-bounded bisection, obstacles and body on the swept triangles "
+            "(Akenine-Moller 2001, separating axes); common practice, no source, that running cables must not "
+            "touch", where))
 
     if np.any(np.isfinite(ws.clearance)):
         k = int(np.argmin(ws.clearance))

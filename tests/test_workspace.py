@@ -820,6 +820,7 @@ def test_an_obstacle_the_cable_sweeps_while_the_platform_turns():
     ws = compute_workspace(d, acceleration=0.0, length_errors=0.0)
     assert ws.n_poses == 2 and ws.sweep_moves == 1
     assert not has(ws, "obstacle").any() and has(ws, "sweep").all()
+    assert {c.key: c for c in design_checks(d, workspace=ws)}["cable_sweep"].status == "fail"  # points only
     att = _dense_turn(d, p, ws.poses[0, 3:], ws.poses[1, 3:])
     r = 0.5 * d.cable.diameter
     hits = segment_hits_box(np.broadcast_to(d.exits[4], att[:, 4].shape), att[:, 4], mid - 0.002 - r, mid + 0.002 + r)
