@@ -566,6 +566,9 @@ def test_orientation_range_is_sampled_at_every_bound_combination_and_inside():
     ('orientation_range = "10 deg"', "task.orientation_range"),
     ('orientation_range = { roll = "-10, 10 deg" }\norientation_samples = 1', "task.orientation_samples"),
     ('orientation_range = { roll = "-10, 10 deg" }\norientation_samples = 2.5', "task.orientation_samples"),
+    ('orientation_range = { roll = "-10, 10 deg" }\norientation_samples = 10', "task.orientation_samples"),
+    ('orientation_samples = 3', "task.orientation_samples"),
+    ('orientation_range = { roll = "-200, 200 deg" }', "task.orientation_range.roll"),
 ])
 def test_bad_orientation_ranges_name_the_field(text, field):
     from cablekit.design import DesignError
