@@ -755,9 +755,12 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
     if "box_lower" not in t and not pts_raw:
         c.add("task", "no box and no points", "a task region: box_lower and box_upper, and/or a list of points")
         ok = False
-    ori_raw = t.get("orientations", ["0, 0, 0 deg"])
+    # without a list the platform is level, unless a range says which orientations the task needs
+    ori_raw = t.get("orientations", ["0, 0, 0 deg"] if "orientation_range" not in t or kind == "point" else None)
     oris = []
-    if not isinstance(ori_raw, list) or not ori_raw:
+    if ori_raw is None:
+        ori_raw = []
+    elif not isinstance(ori_raw, list) or not ori_raw:
         c.add("task.orientations", ori_raw, "a non-empty list of roll, pitch, yaw such as ['0, 0, 15 deg']")
         ok = False
         ori_raw = []
@@ -1103,13 +1106,14 @@ def design_to_dict(d: Design) -> dict:
         task["box_upper"] = _v(t.box_upper, "length")
     if t.points:
         task["points"] = [_v(pt, "length") for pt in t.points]
-    if p.kind == "rigid":
+    if p.kind == "rigid" and (t.orientations or t.orientation_range is None):
         task["orientations"] = [_v(o, "angle") for o in t.orientations]
     task["step"] = _q(t.step, "length")
     task["speed"] = _q(t.speed, "speed")
     task["acceleration"] = _q(t.acceleration, "acceleration")
     if t.orientation_range is not None:
-        task["orientation_range"] = {n: _v(r, "angle") for n, r in zip(_ANGLES, t.orientation_range) if r != (0.0, 0.0)}
+        task["orientation_range"] = {n: _v(r, "angle") for n, r in zip(_ANGLES, t.orientation_range)
+                                     if r != (0.0, 0.0)}
         task["orientation_samples"] = t.orientation_samples
     if any(t.wrench_box):
         task["wrench_box"] = {"force": _v(t.wrench_box[:3], "force"), "torque": _v(t.wrench_box[3:], "torque")}

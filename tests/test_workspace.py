@@ -833,3 +833,16 @@ def test_an_obstacle_the_cable_sweeps_while_the_platform_turns():
     d2 = _one_point_turn(d0, p, ((-10 * deg, 10 * deg), (0.0, 0.0), (0.0, 0.0)), ((-10 * deg, 0.0, 0.0),),
                          obstacles=(aside,))
     assert not has(compute_workspace(d2, acceleration=0.0, length_errors=0.0), "sweep").any()
+
+
+def test_a_range_alone_is_the_orientation_set():
+    # no list: the range says which orientations the task needs (no extra level pose)
+    from cablekit.design import dumps_design, loads_design
+    from cablekit.region import task_orientations
+
+    d = _with_task_lines(SANDER, SANDER_ORIS, 'orientation_range = { roll = "5, 15 deg" }')
+    assert d.task.orientations == ()
+    assert np.allclose(np.degrees(task_orientations(d.task)), [[5, 0, 0], [10, 0, 0], [15, 0, 0]], atol=1e-12)
+    back = loads_design(dumps_design(d))
+    assert back.task.orientations == () and np.array_equal(task_orientations(back.task), task_orientations(d.task))
+    assert compute_workspace(d, step=0.35, acceleration=0.0, length_errors=0.0).orientations.shape == (3, 3)
