@@ -60,7 +60,8 @@ against obstacles and the platform body exactly, on the triangle each cable swee
 (Akenine-Moller 2001, separating axes).  With an orientation range, the turns between
 neighbouring orientations of its grid (at every position) are swept too, by bisection on the
 same kind of bound (the attachment moves at most ``|b_i|`` times the summed angle changes):
-cable pairs and obstacles; the platform body is not checked on turns.
+cable pairs, obstacles and, in the platform frame, the body (a span is clear when a face plane of
+the body has the attachment and every position of the exit on that span beyond it).
 
 A **position** is covered when every orientation of the set is feasible there.
 The **static workspace** uses gravity alone as the load (no wrench box, no extra wrench);
@@ -506,7 +507,7 @@ def _orientation_neighbours(oris, orientation_range, samples) -> np.ndarray:
 
 def _turn_hits(design, qa, qb, pairs) -> np.ndarray:
     """(c,) True where a move qa -> qb that turns the platform (angles interpolated linearly) brings
-    cables into contact with each other or an obstacle.
+    cables into contact with each other, an obstacle or the platform body.
 
     Bisection on a Lipschitz bound: over a span of the move, attachment i moves at most
     ``|dp| + |b_i| (|d roll| + |d pitch| + |d yaw|)`` times the span (each Euler angle turns the
@@ -572,6 +573,42 @@ def _turn_hits(design, qa, qb, pairs) -> np.ndarray:
             near = segment_hits_box(a[i], pt, lo - grow, hi + grow) & ~hit[e]
             e, i = np.concatenate([e[near], e[near]]), np.concatenate([i[near], i[near]])
             s0, s1 = np.concatenate([s0[near], sm[near]]), np.concatenate([sm[near], s1[near]])
+        hit[e] = True
+    # the platform body, in the platform frame: the cable runs from b_i to f(s) = R(s)^T (a_i - p(s)),
+    # and f moves at most |a_i - p| (summed angle changes) + |dp| per unit of the move.  On a span, the
+    # cables lie in the hull of b_i and the ball around f(middle); a face plane of the body with that
+    # hull on its outer side separates them (a sufficient test, so the answer stays conservative).
+    half = np.asarray(design.platform.body_half_size, float)
+    if design.dof == 6 and np.all(half > 0):
+        shrink = 1e-6 * max(1.0, float(np.max(half)))
+        hb = half - shrink
+        shift = np.linalg.norm(dq[:, :3], axis=1)[:, None]  # (c, 1)
+        far_motion = ((np.linalg.norm(a[None] - qa[:, None, :3], axis=2) + shift)
+                      * np.sum(np.abs(dq[:, 3:]), axis=1)[:, None] + shift)  # |d f / d s| bound (c, m)
+
+        def far(rows, cab, s):
+            q = qa[rows] + s[:, None] * dq[rows]
+            return np.einsum("nji,nj->ni", rotation_matrices(q[:, 3:]), a[cab] - q[:, :3])
+
+        e, i = np.nonzero(np.ones((c, design.m), bool) & ~hit[:, None])
+        s0, s1 = np.zeros(len(e)), np.ones(len(e))
+        for _ in range(SWEEP_DEPTH + 1):
+            keep = ~hit[e]
+            e, i, s0, s1 = e[keep], i[keep], s0[keep], s1[keep]
+            if not len(e):
+                break
+            sm = 0.5 * (s0 + s1)
+            fm = far(e, i, sm)
+            hit[e[segment_hits_box(b[i], fm, -hb, hb)]] = True
+            rho = 0.5 * (s1 - s0) * far_motion[e, i]
+            # separated by a face x_k = +-hb_k: b_i and the whole ball beyond the plane
+            sep = np.zeros(len(e), bool)
+            for k in range(3):
+                sep |= (b[i, k] > hb[k]) & (fm[:, k] - rho > hb[k])
+                sep |= (b[i, k] < -hb[k]) & (fm[:, k] + rho < -hb[k])
+            split = ~sep & ~hit[e]
+            e, i = np.concatenate([e[split], e[split]]), np.concatenate([i[split], i[split]])
+            s0, s1 = np.concatenate([s0[split], sm[split]]), np.concatenate([sm[split], s1[split]])
         hit[e] = True
     return hit
 
@@ -1350,8 +1387,8 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
         out.append(f"Sampling: grid step {ws.step * 1e3:g} mm, {ppa[0]} x {ppa[1]} x {ppa[2]} points along x, y, z; "
                    "tensions are judged at the nodes only; contact is checked at the nodes and on the straight moves "
                    "between neighbouring nodes at each sampled orientation; turns between neighbouring orientations "
-                   "of the range are swept for cable pairs and obstacles, not for the platform body; moves to or "
-                   "from the listed orientations and diagonal moves are not swept.")
+                   "of the range are swept for cable pairs, obstacles and the platform body; moves to or from the "
+                   "listed orientations and diagonal moves are not swept.")
     elif t.box_lower is None:
         out.append("Sampling: task points only; nothing between the points is checked.")
     out.append("Cables are straight and massless with fixed exit points in the workspace map (sag is judged in the "

@@ -725,7 +725,7 @@ def test_assumptions_name_what_the_verdict_rests_on():
     ws = compute_workspace(d, step=0.25)
     text = " ".join(run_assumptions(d, workspace=ws))
     for phrase in ("0.5 m/s^2", "7.0 %", "Angular accelerations", "length-controlled", "orientation range",
-                   "grid step 250 mm", "not for the platform body", "diagonal moves are not swept"):
+                   "grid step 250 mm", "turns between neighbouring orientations", "diagonal moves are not swept"):
         assert phrase in text
     still = replace(d, task=replace(d.task, acceleration=0.0))
     assert "quasi-static" in " ".join(design_assumptions(still))
@@ -846,3 +846,36 @@ def test_a_range_alone_is_the_orientation_set():
     back = loads_design(dumps_design(d))
     assert back.task.orientations == () and np.array_equal(task_orientations(back.task), task_orientations(d.task))
     assert compute_workspace(d, step=0.35, acceleration=0.0, length_errors=0.0).orientations.shape == (3, 3)
+
+
+def test_a_cable_through_the_platform_body_while_it_turns():
+    # Worked by hand, in the platform frame: T1 re-tied to an outrigger at (0.3, 0, 0) m on a head
+    # 0.3 x 0.02 x 0.2 m at the point (2.0, 0.0, 2.3) m; the exit (0, 0, 2.5) m lies along
+    # (-2, 0, 0.2) m when the head is square (yaw 0), so the cable crosses x = 0.15 m at
+    # z = 0.013 m (inside the body), but turned -10 or +10 deg about z it crosses at |y| >= 0.023 m,
+    # beside the 10 mm half-width.  Reference: the slab test (Ericson 2005, sec. 5.3.3) on 801 yaws.
+    from cablekit.statics import rotation_matrices
+
+    d0 = load_design(SANDER)
+    deg = np.pi / 180
+    p = np.array([2.0, 0.0, 2.3])
+
+    def rig(b0):
+        att = np.array(d0.platform.attachments)
+        att[0] = b0
+        return _one_point_turn(replace(d0, platform=replace(d0.platform, attachments=tuple(map(tuple, att)),
+                                                            body_half_size=(0.15, 0.01, 0.1))),
+                               p, ((0.0, 0.0), (0.0, 0.0), (-10 * deg, 10 * deg)), ((0.0, 0.0, -10 * deg),))
+
+    d = rig((0.3, 0.0, 0.0))
+    ws = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    assert ws.n_poses == 2 and ws.sweep_moves == 1
+    assert not has(ws, "body").any() and has(ws, "sweep").all()
+    s = np.linspace(0.0, 1.0, 801)
+    R = rotation_matrices(np.column_stack([0 * s, 0 * s, (-10 + 20 * s) * deg]))
+    far = np.einsum("nji,j->ni", R, d.exits[0] - p)
+    half = np.array([0.15, 0.01, 0.1])
+    hits = segment_hits_box(np.broadcast_to([0.3, 0.0, 0.0], far.shape), far, -half, half)
+    assert not hits[0] and not hits[-1] and hits[400]
+    # the outrigger raised 0.2 m: the cable passes above the body all the way round
+    assert not has(compute_workspace(rig((0.3, 0.0, 0.2)), acceleration=0.0, length_errors=0.0), "sweep").any()
