@@ -1316,9 +1316,9 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
         checks.append(Check(
             "cable_sweep", "cables", "Cables clear on the moves between grid nodes",
             float(nf), 0.0, "moves", margin, status,
-            "geometry: cable pairs by Lipschitz-bounded bisection, obstacles and body on the swept triangles "
-            "(Akenine-Moller 2001, separating axes); common practice, no source, that running cables must not "
-            "touch", where))
+            "geometry: cable pairs by Lipschitz-bounded bisection, obstacles and body on the swept triangles of "
+            "shifts (Akenine-Moller 2001, separating axes) and by bisection on turns; common practice, no source, "
+            "that running cables must not touch", where))
 
     if np.any(np.isfinite(ws.clearance)):
         k = int(np.argmin(ws.clearance))
