@@ -794,8 +794,9 @@ class WorkspaceResult:
                          "shift tensions by up to " + ", ".join(f"{n} {v:.1f} N" for n, v in zip(self.cable_names, sp)))
         if self.sweep_moves:
             nf = 0 if self.sweep_failures is None else len(self.sweep_failures)
-            lines.append(f"  moves    : {self.sweep_moves:,} moves between neighbouring nodes (shifts, and turns within "
-                         f"the orientation range) checked for contact, {nf:,} fail")
+            kinds = " (shifts, and turns within the orientation range)" if self.kind == "rigid" else ""
+            lines.append(f"  moves    : {self.sweep_moves:,} moves between neighbouring nodes{kinds} checked for contact, "
+                         f"{nf:,} fail")
         pf = self.position_feasible
         lines.append(f"  covered  : {int(pf.sum()):,} of {P:,} task positions ({100 * self.coverage:.1f} %)")
         if self.box_lower is not None:
