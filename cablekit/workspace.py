@@ -1297,15 +1297,18 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
             + (f"; first failing at {ws._pose_text(int(np.argmax(short)))}" if np.any(short) else "")))
 
     ppa = ws.points_per_axis
-    if ppa is not None:
+    # an axis along which the box is flat (a plane or a line of work) has nothing between its faces
+    spans = [n for n, lo, hi in zip(ppa or (), ws.box_lower if ws.box_lower is not None else (),
+                                    ws.box_upper if ws.box_upper is not None else ()) if hi > lo]
+    if spans:
         need = practice_value("grid_points_per_axis_min", design.practice)
-        value = float(min(ppa))
+        value = float(min(spans))
         margin, status = judge(value, 2.0, upper=False, warn_limit=need)
         checks.append(Check(
             "grid_resolution", "task region", "Grid fine enough to stand for the task box",
             value, need, "points", value - need, status,
             f"at least {need:g} points along each axis: {PRACTICE['grid_points_per_axis_min'].source}; "
-            "fewer than 2 fails (the box's faces are not both sampled)",
+            "fewer than 2 fails (the box's faces are not both sampled); flat axes of the box are not counted",
             f"grid step {ws.step * 1e3:g} mm: {ppa[0]} x {ppa[1]} x {ppa[2]} points along x, y, z; tensions are judged "
             "at the nodes only"))
     nf = 0 if ws.sweep_failures is None else len(ws.sweep_failures)

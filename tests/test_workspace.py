@@ -653,6 +653,10 @@ def test_grid_resolution_warns_on_a_coarse_grid_and_states_the_step():
     thin = replace(d, task=replace(d.task, box_upper=(2.0, 0.55, 1.4)))
     c = {c.key: c for c in design_checks(thin, workspace=compute_workspace(thin, step=0.1))}["grid_resolution"]
     assert c.status == "fail" and c.value == 1
+    # a flat box (a plane of work) is judged on its two real axes only
+    flat = replace(d, task=replace(d.task, box_lower=(1.0, 0.5, 1.0), box_upper=(2.0, 0.95, 1.0)))
+    c = {c.key: c for c in design_checks(flat, workspace=compute_workspace(flat, step=0.05))}["grid_resolution"]
+    assert c.status == "pass" and c.value == 10
     # the design's [practice] table may ask for more
     strict = replace(d, practice={"grid_points_per_axis_min": 30})
     assert {c.key: c for c in design_checks(strict, workspace=compute_workspace(strict))}[
