@@ -463,6 +463,7 @@ class Design:
 OPTIONAL_SECTIONS: dict[str, str] = {
     "arm": "cablekit.arm:parse_arm_section",
     "errors": "cablekit.accuracy:parse_errors_section",
+    "control": "cablekit.workspace:parse_control_section",
 }
 
 _TOP_KEYS = {"format", "meta", "frame", "platform", "cable", "winch", "winches", "payload", "task",

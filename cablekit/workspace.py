@@ -46,7 +46,9 @@ equilibrium gives ``dx = -K^-1 W K_c e`` and
 ``|e_j| <= delta_j`` is, per cable, exactly ``spread_i = sum_j |S_ij| delta_j`` (a linear
 function's extreme on a box is at a vertex).  The pose margin becomes
 ``margin - max_i spread_i`` (conservative).  For m = n, ``S = 0`` to first order: length
-errors move the pose (:mod:`cablekit.accuracy`), not the tensions.
+errors move the pose (:mod:`cablekit.accuracy`), not the tensions.  A design whose winches hold
+tensions says so in ``[control]`` (``winches = "tension"``, ``tension_accuracy = "3 N"``,
+:func:`parse_control_section`): then each cable's spread is that accuracy instead.
 
 Sampling
 --------
@@ -166,7 +168,7 @@ REASONS: dict[str, tuple[int, str]] = {
     "motor": (4, "over the motor limit"),
     "rope": (2, "over the rope limit"),
     "slack": (1, "a cable goes slack"),
-    "length": (128, "length errors push a cable out of its window"),
+    "length": (128, "length (or tension-control) errors push a cable out of its window"),
     "sweep": (256, "contact on a move between grid nodes"),
 }
 REASON_BITS = {k: v[0] for k, v in REASONS.items()}
@@ -687,6 +689,7 @@ class WorkspaceResult:
     length_error: np.ndarray | None = None  # (m,) length-error half-widths used [m]
     sweep_moves: int = 0  # moves between neighbouring grid nodes checked for contact
     sweep_failures: np.ndarray | None = None  # (F, 2) pose indices of the moves that failed
+    winch_control: str = "length"  # what the winches hold: "length" or "tension" ([control])
 
     @property
     def points_per_axis(self) -> tuple[int, int, int] | None:
@@ -787,8 +790,12 @@ class WorkspaceResult:
             load += (f" + accelerations up to {self.acceleration:g} m/s^2 in any direction (polytope, vertices "
                      f"{100 * (self.accel_overshoot - 1):.1f} % beyond)")
         lines.append(f"  load     : {load}")
-        if self.length_error is not None and np.any(self.length_error > 0) and self.length_spread is not None \
-                and len(self.cable_names) > len(self.extra_wrench):
+        redundant = len(self.cable_names) > len(self.extra_wrench)
+        if redundant and self.winch_control == "tension" and self.length_spread is not None:
+            lines.append(f"  tensions : tension-controlled winches, each within +/-{np.max(self.max_length_spread()):g} N "
+                         "of its set tension")
+        elif self.length_error is not None and np.any(self.length_error > 0) and self.length_spread is not None \
+                and redundant:
             sp = self.max_length_spread()
             lines.append(f"  lengths  : length errors +/-{np.max(self.length_error) * 1e3:.2f} mm (length control) "
                          "shift tensions by up to " + ", ".join(f"{n} {v:.1f} N" for n, v in zip(self.cable_names, sp)))
@@ -927,7 +934,7 @@ class WorkspaceResult:
                 "limited_by": list(self.limited_by), "method": self.method, "suspended": bool(self.suspended),
                 "step": float(self.step), "lp_poses": int(self.lp_poses),
                 "acceleration": float(self.acceleration), "accel_overshoot": float(self.accel_overshoot),
-                "sweep_moves": int(self.sweep_moves),
+                "sweep_moves": int(self.sweep_moves), "winch_control": self.winch_control,
                 "reasons": {k: v[0] for k, v in REASONS.items()}}
         arrays = {}
         for f in fields(self):
@@ -1008,7 +1015,7 @@ def load_workspace(path) -> WorkspaceResult:
             limited_by=tuple(meta["limited_by"]), method=str(meta["method"]), suspended=bool(meta["suspended"]),
             step=float(meta["step"]), lp_poses=int(meta.get("lp_poses", 0)),
             acceleration=float(meta["acceleration"]), accel_overshoot=float(meta["accel_overshoot"]),
-            sweep_moves=int(meta["sweep_moves"]),
+            sweep_moves=int(meta["sweep_moves"]), winch_control=str(meta["winch_control"]),
             **{k: (data[k] if data[k].size or k == "sweep_failures" else None) for k in _OPTIONAL_ARRAYS},
             axes=axes if has_axes else None,
             box_lower=data["box_lower"] if len(data["box_lower"]) else None,
@@ -1044,6 +1051,63 @@ def _accel_bound(W, G) -> np.ndarray:
     X = np.linalg.solve(np.where(det_ok[:, None, None], WWt, np.eye(n)), G)
     rows = np.linalg.norm(np.swapaxes(W, 1, 2) @ X, axis=2)  # (c, m)
     return np.where(det_ok, np.max(rows, axis=1), np.inf)
+
+
+@dataclass(frozen=True)
+class WinchControl:
+    """The ``[control]`` section: what the winches hold.
+
+    winches : "length" (the default: encoders hold lengths, tensions follow from the stiffness)
+    or "tension" (each winch holds a set tension); tension_accuracy : for tension control, how
+    closely each winch holds its set tension (+/-) [N].
+    """
+
+    winches: str = "length"
+    tension_accuracy: float = 0.0
+
+
+def parse_control_section(raw, add_problem, path: str, design) -> WinchControl | None:
+    """Parse ``[control]``: ``winches = "length" | "tension"`` and, for tension control,
+    ``tension_accuracy = "3 N"``; every problem goes to ``add_problem(path, value, expected)``."""
+    from collections.abc import Mapping
+
+    from .units import UnitError, parse_quantity
+
+    if not isinstance(raw, Mapping):
+        add_problem(path, raw, "a table such as winches = 'tension' and tension_accuracy = '3 N'")
+        return None
+    ok = True
+    for key in raw:
+        if key not in ("winches", "tension_accuracy"):
+            add_problem(f"{path}.{key}", raw[key], "unknown key; allowed here: tension_accuracy, winches")
+            ok = False
+    mode = raw.get("winches", "length")
+    if mode not in ("length", "tension"):
+        add_problem(f"{path}.winches", mode, "'length' (encoders hold lengths) or 'tension' (winches hold tensions)")
+        return None
+    acc = 0.0
+    if mode == "tension":
+        if "tension_accuracy" not in raw:
+            add_problem(f"{path}.tension_accuracy", "missing", "tension control needs how closely each winch holds its "
+                        "tension, a force such as '3 N'")
+            return None
+        try:
+            acc = parse_quantity(raw["tension_accuracy"], "force", field=f"{path}.tension_accuracy")
+        except UnitError as exc:
+            add_problem(f"{path}.tension_accuracy", raw["tension_accuracy"], str(exc).split(": ", 1)[-1])
+            return None
+        if not math.isfinite(acc) or acc < 0:
+            add_problem(f"{path}.tension_accuracy", raw["tension_accuracy"], "a finite force of zero or more")
+            return None
+    elif "tension_accuracy" in raw:
+        add_problem(f"{path}.tension_accuracy", raw["tension_accuracy"], "only used with winches = 'tension'")
+        return None
+    return WinchControl(winches=mode, tension_accuracy=acc) if ok else None
+
+
+def _control(design) -> WinchControl:
+    ctl = design.sections.get("control") if design is not None else None
+    return ctl if isinstance(ctl, WinchControl) else WinchControl()
 
 
 def _length_errors(design) -> np.ndarray:
@@ -1106,8 +1170,10 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     if not math.isfinite(a_max) or a_max < 0:
         raise ValueError(f"acceleration must be a finite, non-negative value [m/s^2], got {acceleration!r}")
     redundant = m > n
+    control = _control(design)
+    tension_held = control.winches == "tension" and length_errors is None  # an explicit length error wins
     dL = np.zeros(m)
-    if redundant:
+    if redundant and not tension_held:
         dL = _length_errors(design) if length_errors is None else np.broadcast_to(
             np.asarray(length_errors, float), (m,)).copy()
         if not np.all(np.isfinite(dL)) or np.any(dL < 0):
@@ -1148,7 +1214,10 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         margin = res.margin.copy()
         act_lo, act_hi, lcable = res.active_lower.copy(), res.active_upper.copy(), res.limiting_cable.copy()
         worst = np.zeros(e - s)
-        if redundant and np.any(dL > 0):
+        if redundant and tension_held:
+            spread[s:e] = control.tension_accuracy
+            worst = np.full(e - s, control.tension_accuracy)
+        elif redundant and np.any(dL > 0):
             sp = length_error_spread(design, q, res.tensions, dL)
             spread[s:e] = sp
             worst = np.max(sp, axis=1)
@@ -1186,10 +1255,10 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         rs |= np.where(tb & np.any(act_hi & motor, axis=1), REASON_BITS["motor"], 0).astype(np.uint16)
         # a failing pose must carry a reason even if no active set was reported (never a silent pass)
         rs |= np.where(bad & (rs == 0), REASON_BITS["slack"], 0).astype(np.uint16)
-        if redundant and np.any(dL > 0):
+        if redundant and (tension_held or np.any(dL > 0)):
             short = ~bad & (margin - worst < 0)
             rs |= np.where(short, REASON_BITS["length"], 0).astype(np.uint16)
-            lcable = np.where(short, np.argmax(np.where(np.isfinite(sp), sp, np.inf), axis=1), lcable)
+            lcable = np.where(short, np.argmax(spread[s:e], axis=1), lcable)
             margin = np.where(bad, margin, margin - worst)  # a failing pose keeps its own (worse) margin
         clearance, body, obstacle = _geometry(design, q, pairs)
         rs |= np.where(clearance < 0, REASON_BITS["interference"], 0).astype(np.uint16)
@@ -1238,7 +1307,7 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         limiting_cable=out["limiting_cable"], reasons=out["reasons"], t_min=lim.t_min, t_max=lim.t_max,
         wrench_box=box, extra_wrench=extra, lp_poses=lp_poses, acceleration=a_max, accel_overshoot=overshoot,
         rest_margin=out["rest_margin"], length_spread=spread, length_error=dL, sweep_moves=int(n_moves),
-        sweep_failures=failed)
+        sweep_failures=failed, winch_control="tension" if tension_held else "length")
 
 
 # --------------------------------------------------------------------------------------
@@ -1272,7 +1341,9 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
     loads = []
     if ws.acceleration > 0:
         loads.append(f"accelerations up to {ws.acceleration:g} m/s^2 in any direction")
-    if ws.length_error is not None and np.any(ws.length_error > 0) and len(ws.cable_names) > len(ws.extra_wrench):
+    if ws.winch_control == "tension" and len(ws.cable_names) > len(ws.extra_wrench):
+        loads.append(f"tension-control errors up to +/-{np.max(ws.max_length_spread()):g} N")
+    elif ws.length_error is not None and np.any(ws.length_error > 0) and len(ws.cable_names) > len(ws.extra_wrench):
         loads.append(f"length errors up to +/-{np.max(ws.length_error) * 1e3:.2f} mm")
     checks.append(Check("tension_margin", "task region", "Least tension margin over the task region",
                         value, 0.0, "N", margin, status,
@@ -1280,12 +1351,23 @@ def design_checks(design, *, workspace: WorkspaceResult | None = None) -> list[C
                         f"{PRACTICE['tension_margin_warn'].source}",
                         f"at {ws._pose_text(k)}, cable {cable}" + (f" (with {' and '.join(loads)})" if loads else "")))
 
-    if ws.length_spread is not None and len(ws.cable_names) > len(ws.extra_wrench) \
-            and ws.length_error is not None and np.any(ws.length_error > 0):
+    held = ws.winch_control == "tension"
+    if ws.length_spread is not None and len(ws.cable_names) > len(ws.extra_wrench) and (held or (
+            ws.length_error is not None and np.any(ws.length_error > 0))):
         short = (ws.reasons & REASON_BITS["length"]) != 0
         value = float(np.count_nonzero(short))
         margin, status = judge(value, 0.0, upper=True)
         sp = ws.max_length_spread()
+    if held and ws.length_spread is not None and len(ws.cable_names) > len(ws.extra_wrench):
+        checks.append(Check(
+            "length_error_tensions", "cables", "Tension window holds with the winches' tension accuracy (tension "
+            "control)", value, 0.0, "poses", margin, status,
+            "[control] tension_accuracy of the design: each winch holds its set tension to within it (the designer's "
+            "statement, to be confirmed on the rig)",
+            f"each cable within +/-{np.max(sp):g} N of its set tension"
+            + (f"; first failing at {ws._pose_text(int(np.argmax(short)))}" if np.any(short) else "")))
+    elif ws.length_spread is not None and len(ws.cable_names) > len(ws.extra_wrench) \
+            and ws.length_error is not None and np.any(ws.length_error > 0):
         checks.append(Check(
             "length_error_tensions", "cables", "Tension window holds with length errors (length-controlled winches)",
             value, 0.0, "poses", margin, status,
@@ -1366,7 +1448,13 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
                    "included; nor is the arm's own motion.")
     else:
         out.append("task.acceleration is 0: the workspace map is quasi-static (no inertial loads are checked).")
-    if m > n:
+    control = _control(design)
+    if m > n and control.winches == "tension" and (ws is None or ws.winch_control == "tension"):
+        out.append(f"{m} cables for {n} degrees of freedom, winches holding tensions ([control] winches = 'tension'): "
+                   f"each cable is taken to stay within +/-{control.tension_accuracy:g} N of its set tension, which is "
+                   "taken off each pose's margin; the set tensions are assumed to be the max-margin distribution for "
+                   "every load, and length errors then move the pose, not the tensions.")
+    elif m > n:
         dL = _length_errors(design) if ws is None or ws.length_error is None else ws.length_error
         out.append(f"{m} cables for {n} degrees of freedom: the winches are taken to be length-controlled; length "
                    f"errors up to +/-{np.max(dL) * 1e3:.2f} mm per cable (home length, quantisation and deadband of the "
@@ -1376,7 +1464,9 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
                    "every load.")
     else:
         out.append(f"{m} cables for {n} degrees of freedom: the tensions are fixed by the load; length errors move the "
-                   "pose (see the accuracy section), not the tensions (to first order).")
+                   "pose (see the accuracy section), not the tensions (to first order)"
+                   + ("; tension control ([control]) has no freedom to choose them." if control.winches == "tension"
+                      else "."))
     try:
         K = len(task_orientations(t)) if n == 6 else 1
     except ValueError:

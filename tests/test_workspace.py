@@ -883,3 +883,58 @@ def test_a_cable_through_the_platform_body_while_it_turns():
     assert not hits[0] and not hits[-1] and hits[400]
     # the outrigger raised 0.2 m: the cable passes above the body all the way round
     assert not has(compute_workspace(rig((0.3, 0.0, 0.2)), acceleration=0.0, length_errors=0.0), "sweep").any()
+
+
+# --------------------------------------------------------------------------------------
+# [control]: winches that hold tensions instead of lengths
+# --------------------------------------------------------------------------------------
+def _camera_with(section):
+    from cablekit.design import loads_design
+
+    return loads_design(CAMERA.read_text() + "\n" + section)
+
+
+def test_tension_controlled_winches_take_their_accuracy_off_the_margin():
+    # A redundant rig whose winches hold tensions does not see the length-error self-stress; its
+    # cables stay within the stated accuracy of their set tensions, and that is what the window
+    # must hold (the designer's statement; no outside reference: a definition).
+    d = _camera_with('[control]\nwinches = "tension"\ntension_accuracy = "2 N"\n')
+    d = at_points(d, [(2.0, 1.5, 1.8)])
+    exact = compute_workspace(d, acceleration=0.0, length_errors=0.0)
+    held = compute_workspace(d, acceleration=0.0)
+    assert held.winch_control == "tension" and held.feasible[0]
+    assert np.all(held.length_spread[0] == 2.0)
+    assert held.margin[0] == pytest.approx(exact.margin[0] - 2.0, rel=1e-12)
+    checks = {c.key: c for c in design_checks(d, workspace=held)}
+    assert checks["length_error_tensions"].status == "pass" and "tension control" in checks["length_error_tensions"].title
+    assert "within +/-2 N" in "\n".join(held.summary())
+    assert "winches holding tensions" in " ".join(design_assumptions(d, workspace=held))
+    # a sloppy tension loop (+/- 40 N on a 5..61 N window) fails the pose for that reason
+    sloppy = at_points(_camera_with('[control]\nwinches = "tension"\ntension_accuracy = "40 N"\n'), [(2.0, 1.5, 1.8)])
+    ws = compute_workspace(sloppy, acceleration=0.0)
+    assert not ws.feasible[0] and ws.reasons[0] == REASON_BITS["length"]
+    assert {c.key: c for c in design_checks(sloppy, workspace=ws)}["length_error_tensions"].status == "fail"
+
+
+@pytest.mark.parametrize("section, field", [
+    ('[control]\nwinches = "torque"\n', "control.winches"),
+    ('[control]\nwinches = "tension"\n', "control.tension_accuracy"),
+    ('[control]\nwinches = "tension"\ntension_accuracy = "2 mm"\n', "control.tension_accuracy"),
+    ('[control]\nwinches = "tension"\ntension_accuracy = "-2 N"\n', "control.tension_accuracy"),
+    ('[control]\nwinches = "length"\ntension_accuracy = "2 N"\n', "control.tension_accuracy"),
+    ('[control]\nmode = "tension"\n', "control.mode"),
+])
+def test_bad_control_sections_name_the_field(section, field):
+    from cablekit.design import DesignError
+
+    with pytest.raises(DesignError) as err:
+        _camera_with(section)
+    assert field in str(err.value)
+
+
+def test_square_rigs_say_tension_control_has_no_freedom():
+    from cablekit.design import loads_design
+
+    d = loads_design(GREENHOUSE.read_text() + '\n[control]\nwinches = "tension"\ntension_accuracy = "1 N"\n')
+    assert "no freedom" in " ".join(design_assumptions(d))
+    assert not np.any(compute_workspace(d, step=0.2).length_spread)
