@@ -903,6 +903,9 @@ def test_tension_controlled_winches_take_their_accuracy_off_the_margin():
     exact = compute_workspace(d, acceleration=0.0, length_errors=0.0)
     held = compute_workspace(d, acceleration=0.0)
     assert held.winch_control == "tension" and held.feasible[0]
+    from cablekit.design import dumps_design, loads_design
+
+    assert loads_design(dumps_design(d)).sections["control"] == d.sections["control"]  # saved and read back
     assert np.all(held.length_spread[0] == 2.0)
     assert held.margin[0] == pytest.approx(exact.margin[0] - 2.0, rel=1e-12)
     checks = {c.key: c for c in design_checks(d, workspace=held)}
