@@ -877,9 +877,10 @@ def design_checks(design, *, arm_reach: ArmReach | None = None) -> list[Check]:
 
 
 def _levelling_checks(design, arm: Arm) -> list[Check]:
+    from .region import task_orientations
     from .statics import rotation_matrices
 
-    oris = np.array([design.home_pose[3:], *design.task.orientations], float)
+    oris = np.array([design.home_pose[3:], *task_orientations(design.task)], float)  # the list and the range
     lev = levelling_angles(arm, rotation_matrices(oris), -np.asarray(design.frame.gravity_direction))
     worst = int(np.argmax(lev.residual))
     o = np.degrees(oris[worst])

@@ -941,3 +941,21 @@ def test_square_rigs_say_tension_control_has_no_freedom():
     d = loads_design(GREENHOUSE.read_text() + '\n[control]\nwinches = "tension"\ntension_accuracy = "1 N"\n')
     assert "no freedom" in " ".join(design_assumptions(d))
     assert not np.any(compute_workspace(d, step=0.2).length_spread)
+
+
+def test_arm_levelling_sees_the_orientation_range(monkeypatch):
+    # the arm's levelling check samples every task orientation, the range's included
+    from cablekit import arm as arm_mod
+
+    seen = []
+    real = arm_mod.levelling_angles
+
+    def spy(arm, R, up):
+        seen.append(len(R))
+        return real(arm, R, up)
+
+    monkeypatch.setattr(arm_mod, "levelling_angles", spy)
+    d = load_design(SANDER)
+    the_arm = load_design(GREENHOUSE).sections["arm"]
+    arm_mod._levelling_checks(d, the_arm)
+    assert seen == [1 + 10]  # home + the listed yaw + the 3 x 3 roll-pitch grid
