@@ -19,14 +19,15 @@ The platform, payload and arm (lumped) accelerating by ``a`` need the cables to 
 ``M a`` more: the load is ``w_g - M_q[:, :3] a`` with ``M_q`` the mass matrix about the
 reference point (:func:`cablekit.stiffness.mass_matrix`: ``m a`` and, for a rigid platform,
 its moment ``m c x a`` through the combined centre of mass).  The ball ``|a| <= a_max`` is
+(for m = n exactly: the tensions are unique, so each cable's extremes over the wrench box and
+the ball add, ``t_i +- (sum_k |(W^-1)_ik| box_k + a_max |row_i(W^-1 G)|)``; otherwise)
 enclosed in a polytope (:func:`acceleration_polytope`: a geodesic polyhedron of 42 vertices
 whose faces touch the ball, vertices 7.0 % outside it), so the check is conservative.  The
 margin is concave in the load, so its least value over (polytope + wrench box) is at a vertex
 (Bosscher, Riechel and Ebert-Uphoff 2006): every polytope vertex is solved with the wrench box
 around it.  To spare that work where it cannot change a verdict, a bound for the whole ball
 comes first: the tensions ``t + W^+ G a`` balance the accelerated load ``w - G a``, so the
-margin is at least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz; exact for m = n when
-the binding cable has the largest row); only poses where this bound falls below the warning level are solved
+margin is at least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz); only poses where this bound falls below the warning level are solved
 on the polytope, and the larger of the two lower bounds is kept.  Poses that already fail at rest
 keep the bound, those failing for their length errors alone their rest margin (less the spread).
 Angular acceleration and velocity are not in the design file and not included.
@@ -787,8 +788,9 @@ class WorkspaceResult:
             if len(self.wrench_box) == 6:
                 load += " +/-(" + ", ".join(f"{v:g}" for v in self.wrench_box[3:]) + ") N*m"
         if self.acceleration > 0:
-            load += (f" + accelerations up to {self.acceleration:g} m/s^2 in any direction (polytope, vertices "
-                     f"{100 * (self.accel_overshoot - 1):.1f} % beyond)")
+            how = "exact over the ball" if self.accel_overshoot == 1.0 else \
+                f"polytope, vertices {100 * (self.accel_overshoot - 1):.1f} % beyond"
+            load += f" + accelerations up to {self.acceleration:g} m/s^2 in any direction ({how})"
         lines.append(f"  load     : {load}")
         redundant = len(self.cable_names) > len(self.extra_wrench)
         if redundant and self.winch_control == "tension" and self.length_spread is not None:
@@ -1110,6 +1112,30 @@ def _control(design) -> WinchControl:
     return ctl if isinstance(ctl, WinchControl) else WinchControl()
 
 
+def _square_ball_margin(W, G, res, box, a_max, t_min, t_max):
+    """m = n: the exact margin over the wrench box plus the whole acceleration ball.
+
+    The tensions are unique, ``t(w) = -W^-1 w``, so each cable's extremes over the box and the ball
+    add: ``t_i +- (sum_k |(W^-1)_ik| box_k + a_max |row_i(W^-1 G)|)`` (the box by linearity, the ball
+    by Cauchy-Schwarz).  Returns margin (c,), active lower / upper (c, m) and the limiting cable (c,);
+    singular poses keep ``res``'s verdict (no tensions at all).
+    """
+    c, n, m = W.shape
+    ok = np.isfinite(res.margin) & np.all(np.isfinite(res.tensions), axis=1)
+    Winv = np.linalg.inv(np.where(ok[:, None, None], W, np.eye(n)))
+    reach = np.abs(Winv) @ np.asarray(box, float) + a_max * np.linalg.norm(Winv @ G, axis=2)  # (c, m)
+    T = np.where(ok[:, None], res.tensions, 0.0)
+    lo = T - t_min - reach
+    hi = t_max - T - reach
+    slack = np.minimum(lo, hi)
+    lim = np.argmin(slack, axis=1)
+    margin = np.where(ok, slack[np.arange(c), lim], res.margin)
+    act = ok[:, None] & ((slack < 0) | (np.arange(m) == lim[:, None]))
+    act_lo = np.where(ok[:, None], act & (lo <= hi), res.active_lower)
+    act_hi = np.where(ok[:, None], act & (hi < lo), res.active_upper)
+    return margin, act_lo, act_hi, np.where(ok, lim, res.limiting_cable)
+
+
 def _length_errors(design) -> np.ndarray:
     """(m,) half-widths of each cable's unstretched-length error under length control [m]:
     home length + (quantisation + deadband counts) x length per count, from the error budget."""
@@ -1187,6 +1213,8 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     if a_max > 0:
         unit, overshoot = acceleration_polytope()
         accels = a_max * unit
+        if m == n:
+            overshoot = 1.0  # exact over the ball (see _square_ball_margin)
     else:
         accels, overshoot = np.zeros((0, 3)), 1.0
     out = {k: np.empty(N, t) for k, t in (("margin", float), ("static_margin", float), ("clearance", float),
@@ -1221,7 +1249,10 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
             sp = length_error_spread(design, q, res.tensions, dL)
             spread[s:e] = sp
             worst = np.max(sp, axis=1)
-        if len(accels):
+        if len(accels) and m == n:
+            G = mass_matrix(design, q)[:, :, :3]  # inertial wrench of an acceleration a: -G a
+            margin, act_lo, act_hi, lcable = _square_ball_margin(W, G, res, box, a_max, lim.t_min, lim.t_max)
+        elif len(accels):
             G = mass_matrix(design, q)[:, :, :3]  # inertial wrench of an acceleration a: -G a
             # a lower bound for the whole ball first; the polytope only where the bound comes near a verdict
             bound = res.margin - a_max * _accel_bound(W, G)
@@ -1289,7 +1320,9 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     method = "; ".join(sorted(methods))
     if lp_poses:
         method += f"; {lp_poses} pose solve(s) by linear program (scipy HiGHS)"
-    if len(accels):
+    if len(accels) and m == n:
+        method += "; accelerations: exact over the ball (unique tensions)"
+    elif len(accels):
         method += (f"; accelerations: pseudo-inverse bound on {N:,} poses, {len(accels)} polytope vertices on "
                    f"{accel_solved:,} of them")
     t = design.task
@@ -1440,11 +1473,14 @@ def design_assumptions(design, *, workspace: WorkspaceResult | None = None) -> l
     a = t.acceleration if ws is None else ws.acceleration
     if a > 0:
         over = acceleration_polytope()[1] if ws is None else ws.accel_overshoot
+        how = ("with as many cables as degrees of freedom the tensions are unique and each cable's extremes over the "
+               "ball |a| <= a_max are exact" if m == n else
+               "the ball |a| <= a_max is enclosed in a polytope whose vertices reach "
+               f"{100 * (over - 1):.1f} % beyond a_max (conservative) and every vertex is checked where a "
+               "pseudo-inverse bound for the whole ball comes near a verdict")
         out.append(f"Accelerations up to {a:g} m/s^2 in any direction: the inertial wrench -M a of platform, payload "
                    "and arm (their masses lumped at their centres; for a rigid platform its moment through the combined "
-                   "centre of mass) is added to gravity and the wrench box; the ball |a| <= a_max is enclosed in a "
-                   f"polytope whose vertices reach {100 * (over - 1):.1f} % beyond a_max (conservative) and every "
-                   "vertex is checked where a pseudo-inverse bound for the whole ball comes near a verdict. Angular accelerations and velocities are not in the design file and are not "
+                   f"centre of mass) is added to gravity and the wrench box; {how}. Angular accelerations and velocities are not in the design file and are not "
                    "included; nor is the arm's own motion.")
     else:
         out.append("task.acceleration is 0: the workspace map is quasi-static (no inertial loads are checked).")

@@ -383,13 +383,11 @@ def test_acceleration_fails_a_pose_that_holds_at_rest():
     assert not moving.feasible[0] and has(moving, "slack")[0]
     assert moving.rest_margin[0] == pytest.approx(t0 - 17.0, rel=1e-9)  # the margin at rest is kept
     # The exact least tension over the ball |a| <= a_max is t0 - M a_max |row_i(W^-1)| (Cauchy-Schwarz);
-    # the map's bounds (the pseudo-inverse bound, exact here, and the polytope enclosing the ball)
-    # put its margin between the ball's and the ball's at a_max times the polytope's overshoot
-    # (conservative, never optimistic).
+    # with unique tensions the map is exact over the ball
     W = structure_matrix(d, np.zeros((1, 3)) + [0.0, 0.0, 1.9])[0]
     rows = np.linalg.norm(np.linalg.inv(W), axis=1)  # t = -W^-1 (w_g - M a)
     exact = np.min(t0 - M * 1.0 * rows) - 17.0
-    assert exact + 1e-9 >= moving.margin[0] >= np.min(t0 - M * moving.accel_overshoot * rows) - 17.0 - 1e-9
+    assert moving.margin[0] == pytest.approx(exact, abs=1e-9)  # m = n: exact over the ball
     # the hand-worked direction alone already fails: the ball's worst is at most t1
     assert np.min(t0 - M * rows) <= t1 + 1e-12
     # a gentle acceleration within the rest margin passes
