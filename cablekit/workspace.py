@@ -27,8 +27,9 @@ margin is concave in the load, so its least value over (polytope + wrench box) i
 (Bosscher, Riechel and Ebert-Uphoff 2006): every polytope vertex is solved with the wrench box
 around it.  To spare that work where it cannot change a verdict, a bound for the whole ball
 comes first: the tensions ``t + W^+ G a`` balance the accelerated load ``w - G a``, so the
-margin is at least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz); only poses where this bound falls below the warning level are solved
-on the polytope, and the larger of the two lower bounds is kept.  Poses that already fail at rest
+margin is at least ``s - a_max max_i |row_i(W^+ G)|`` (Cauchy-Schwarz); only poses where this
+bound falls below the warning level are solved on the polytope, and the larger of the two lower
+bounds is kept.  Poses that already fail at rest
 keep the bound, those failing for their length errors alone their rest margin (less the spread).
 Angular acceleration and velocity are not in the design file and not included.
 
