@@ -957,3 +957,27 @@ def test_arm_levelling_sees_the_orientation_range(monkeypatch):
     the_arm = load_design(GREENHOUSE).sections["arm"]
     arm_mod._levelling_checks(d, the_arm)
     assert seen == [1 + 10]  # home + the listed yaw + the 3 x 3 roll-pitch grid
+
+
+def test_square_rig_acceleration_and_wrench_box_match_brute_force():
+    # m = n: the map's exact margin over wrench box + acceleration ball against brute force: every box
+    # vertex with 4000 accelerations on the sphere, tensions by numpy.linalg.solve (LAPACK); the
+    # sampled least margin can only be above the true one, and by little (dense sampling)
+    from cablekit.stiffness import mass_matrix
+    from cablekit.tension import box_vertices
+
+    d = _tripod(load_design(GREENHOUSE), t_min=10.0)
+    d = replace(d, task=replace(d.task, wrench_box=(1.0, 2.0, 0.5, 0.0, 0.0, 0.0)))
+    ws = compute_workspace(d, acceleration=1.5)
+    q = ws.poses
+    W = structure_matrix(d, q)[0]
+    G = mass_matrix(d, q)[0, :, :3]
+    lim = tension_limits(d)
+    dirs = np.random.default_rng(5).normal(size=(4000, 3))
+    dirs /= np.linalg.norm(dirs, axis=1)[:, None]
+    worst = np.inf
+    for v in box_vertices(external_wrench(d, q), (1.0, 2.0, 0.5))[0]:
+        t = np.linalg.solve(W, -(v[None, :] - 1.5 * dirs @ G.T).T).T  # (4000, 3)
+        worst = min(worst, float(np.min(np.minimum(t - lim.t_min, lim.t_max - t))))
+    assert ws.margin[0] <= worst + 1e-9
+    assert ws.margin[0] == pytest.approx(worst, abs=0.02)
