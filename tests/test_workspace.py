@@ -981,3 +981,36 @@ def test_square_rig_acceleration_and_wrench_box_match_brute_force():
         worst = min(worst, float(np.min(np.minimum(t - lim.t_min, lim.t_max - t))))
     assert ws.margin[0] <= worst + 1e-9
     assert ws.margin[0] == pytest.approx(worst, abs=0.02)
+
+
+def test_length_error_spread_of_a_rigid_platform_matches_a_nonlinear_spring_solve():
+    # As for the camera above, on the 8-cable rigid sander (elastic and geometric stiffness, the
+    # moment of gravity turning with the head): springs t_i = k_i (L_i(q) - L0_i), k_i = EA / L_i,
+    # every vertex of the +/-1 mm length-error box solved for the full 6-D equilibrium with
+    # scipy.optimize.root.  About 260 N per mm on 2 m cables; the first-order spread agrees to 2 %
+    # (the tensions change by a large share of themselves: second-order terms).
+    from scipy.optimize import root
+
+    from cablekit.kinematics import cable_lengths
+    from cablekit.workspace import length_error_spread
+
+    d = at_points(replace(load_design(SANDER), sections={}), [(2.0, 1.5, 1.25)])
+    q0 = np.array([[2.0, 1.5, 1.25, 0.0, 0.0, 0.0]])
+    t0 = compute_workspace(d, acceleration=0.0, length_errors=0.0).tensions[0]
+    delta = 1e-3
+    spread = length_error_spread(d, q0, t0[None], np.full(d.m, delta))[0]
+    k = d.cable.axial_stiffness / cable_lengths(d, q0)[0]
+    L0 = cable_lengths(d, q0)[0] - t0 / k
+    worst = np.zeros(d.m)
+    for signs in np.array(np.meshgrid(*[[-1.0, 1.0]] * d.m)).reshape(d.m, -1).T:
+        L0e = L0 + delta * signs
+
+        def residual(p):
+            t = k * (cable_lengths(d, p[None])[0] - L0e)
+            return structure_matrix(d, p[None])[0] @ t + external_wrench(d, p[None])[0]
+
+        sol = root(residual, q0[0], method="hybr", options={"xtol": 1e-13})
+        assert np.max(np.abs(residual(sol.x))) < 1e-5  # balanced to 10 uN / 10 uN*m
+        worst = np.maximum(worst, np.abs(k * (cable_lengths(d, sol.x[None])[0] - L0e) - t0))
+    assert spread == pytest.approx(worst, rel=2e-2)
+    assert np.all(spread > 200.0)
