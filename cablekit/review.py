@@ -1156,7 +1156,8 @@ def _render_inputs(design) -> str:
         trow.append(("task points", f"{len(t.points)}: " + "; ".join(_vec(pt, "m") for pt in t.points[:12])
                      + (" …" if len(t.points) > 12 else "")))
     if d.dof == 6:
-        trow.append(("orientations (roll, pitch, yaw)", "; ".join(_vec(o, "deg") for o in t.orientations)))
+        trow.append(("orientations (roll, pitch, yaw)", "; ".join(_vec(o, "deg") for o in t.orientations)
+                     or "none listed: the range below"))
         if t.orientation_range is not None:
             trow.append(("orientation range (roll; pitch; yaw)", "; ".join(_vec(r, "deg") for r in t.orientation_range)
                          + f", {t.orientation_samples} values per angle, every combination"))

@@ -27,7 +27,8 @@ def add_arguments(p) -> None:
     p.add_argument("--step", metavar="LENGTH", help="grid step with a unit, e.g. '20 mm' (default: the design's task.step)")
     p.add_argument("--orientations", metavar="LIST",
                    help="rigid platforms: roll, pitch, yaw sets separated by ';', e.g. '0, 0, 0 deg; 0, 10, 0 deg' "
-                        "(default: the design's task.orientations)")
+                        "(default: the design's task.orientations and task.orientation_range; given here, turns "
+                        "between them are not swept)")
     p.add_argument("--acceleration", metavar="ACCELERATION",
                    help="largest acceleration in any direction with a unit, e.g. '0.5 m/s^2'; '0 m/s^2' gives the "
                         "quasi-static map (default: the design's task.acceleration)")
