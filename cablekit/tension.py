@@ -205,6 +205,8 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
         det = np.where(det == 0, 1.0, det)
         ra, rb = rhs[rows, ja], rhs[rows, jb]
         lam = np.stack([(ra * nb[:, 1] - na[:, 1] * rb) / det, (na[:, 0] * rb - ra * nb[:, 0]) / det], axis=1)
+    if np.any(degenerate):  # a tied optimum: a point of the optimal segment instead of the vertex
+        lam, degenerate = _degenerate_lambda(Nn, cc, h, nom, lam, degenerate, single_n, hmin_i, aln, sn, Sn, cs)
     T = P[:, :, 0] + np.einsum("cir,cr->ci", Nn, lam)
     mt = np.min(np.minimum(T - t_min, t_max - T), axis=1)
     tol = 1e-9 * (1.0 + np.max(np.abs(t_max)))
@@ -229,6 +231,67 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
 
     status = np.where(ok, np.where(degenerate, _TENSIONS_BY_LP, _DONE), _BY_LP).astype(np.int8)
     return T, box, nom, lim, act_lo, act_hi, status
+
+
+def _interval_middle(f, g, room, tiny):
+    """Middle of ``{mu : |f_i + g_i mu| <= room_i for every i}`` (rows of (c, m) arrays).
+
+    Rows with ``|g_i| <= tiny`` do not bound ``mu``; a half-open set gives its one end, an
+    unbounded one ``mu = 0``.  At the optimal margin the set is not empty (up to round-off,
+    which the caller's check of the tensions catches).
+    """
+    use = np.abs(g) > tiny
+    gs = np.where(use, g, 1.0)
+    a = (-room - f) / gs
+    b = (room - f) / gs
+    lo = np.max(np.where(use, np.minimum(a, b), -np.inf), axis=1)
+    hi = np.min(np.where(use, np.maximum(a, b), np.inf), axis=1)
+    both = np.isfinite(lo) & np.isfinite(hi)
+    return np.where(both, 0.5 * (lo + hi), np.where(np.isfinite(lo), lo, np.where(np.isfinite(hi), hi, 0.0)))
+
+
+def _degenerate_lambda(Nn, cc, h, nom, lam, degenerate, single_n, hmin_i, aln, sn, Sn, cs):
+    """Optimal null-space coordinates where the optimum is not one vertex (NumPy path).
+
+    At the optimal margin ``s`` the feasible set of ``lam`` shrinks to a point, a segment or
+    (rarely) more.  A segment arises when the binding dependency involves only ``r`` cables (a
+    zero ``alpha``: for ``r = 2`` two cables with parallel null-space rows, as in symmetric poses
+    of box-shaped rigs) or when the narrowest cable sits at its centre (``s = min h``).  Then
+    ``lam`` lies on a known line (``r = 2``) or anywhere in an interval (``r = 1``), and every
+    cable bounds it to an interval along that line; the middle of their intersection is an
+    optimal point.  Returns the updated ``lam`` and the poses still unresolved (they go to the LP).
+    """
+    c_, m, r = Nn.shape
+    rows = np.arange(c_)
+    room = h[None, :] - nom[:, None]
+    tiny = 1e-12 * np.sqrt(np.max(np.sum(Nn * Nn, axis=2), axis=1))[:, None]
+    lam = lam.copy()
+    if r == 1:
+        sel = np.flatnonzero(degenerate)
+        mu = _interval_middle(cc[sel], Nn[sel, :, 0], room[sel], tiny[sel])
+        lam[sel, 0] = mu
+        return lam, np.zeros_like(degenerate)
+    # r = 2: the line n_a . lam = beta of the anchor cable a
+    zero = np.abs(aln) <= 1e-9 * Sn[:, None]
+    nzero = np.sum(zero, axis=1)
+    nrm = np.sum(Nn[rows[:, None], cs] ** 2, axis=2)  # (c, 3) squared null-space row norms of the triple
+    q = np.argmax(np.where(zero, -1.0, nrm), axis=1)  # the better-conditioned cable of the live pair
+    anchor = np.where(single_n, hmin_i, cs[rows, q])
+    sig = np.sign(aln[rows, q]) * sn
+    beta = np.where(single_n, -cc[:, hmin_i], sig * (h[anchor] - nom) - cc[rows, anchor])
+    na = Nn[rows, anchor]
+    nn = np.sum(na * na, axis=1)
+    line = degenerate & (single_n | (nzero == 1)) & (nn > tiny[:, 0] ** 2)
+    sel = np.flatnonzero(line)
+    if len(sel):
+        na, nn, beta = na[sel], nn[sel], beta[sel]
+        lam0 = na * (beta / nn)[:, None]
+        d = np.stack([-na[:, 1], na[:, 0]], axis=1) / np.sqrt(nn)[:, None]
+        g = np.einsum("cir,cr->ci", Nn[sel], d)
+        f = cc[sel] + np.einsum("cir,cr->ci", Nn[sel], lam0)
+        mu = _interval_middle(f, g, room[sel], tiny[sel])
+        lam[sel] = lam0 + mu[:, None] * d
+    return lam, degenerate & ~line
 
 
 def _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk):
@@ -518,6 +581,85 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                 det = Nn[la, 0] * Nn[lb, 1] - Nn[la, 1] * Nn[lb, 0]
                 lam[0] = (ra * Nn[lb, 1] - Nn[la, 1] * rb) / det
                 lam[1] = (Nn[la, 0] * rb - ra * Nn[lb, 0]) / det
+        if st == 1:
+            # a tied optimum (see _degenerate_lambda): the middle of the optimal interval along a
+            # line (r = 2) or of lam itself (r = 1)
+            tiny = 1e-12 * np.sqrt(nsc)
+            l00 = 0.0
+            l01 = 0.0
+            d0 = 1.0
+            d1 = 0.0
+            line = False
+            if r == 1:
+                line = True
+            else:
+                anchor = -1
+                beta = 0.0
+                if n_single:
+                    anchor = hmin_i
+                    beta = -cc[hmin_i]
+                else:
+                    nz = 0
+                    best = -1.0
+                    for q in range(3):
+                        if q == 0:
+                            l0 = ni0
+                            a0 = na_i
+                        elif q == 1:
+                            l0 = nj0
+                            a0 = na_j
+                        else:
+                            l0 = nk0
+                            a0 = na_k
+                        if abs(a0) <= 1e-9 * n_S:
+                            nz += 1
+                        else:
+                            v = Nn[l0, 0] * Nn[l0, 0] + Nn[l0, 1] * Nn[l0, 1]
+                            if v > best:
+                                best = v
+                                anchor = l0
+                                beta = ((1.0 if a0 > 0 else -1.0) * n_sgn) * (h[l0] - bn) - cc[l0]
+                    if nz != 1:
+                        anchor = -1
+                if anchor >= 0:
+                    nn = Nn[anchor, 0] * Nn[anchor, 0] + Nn[anchor, 1] * Nn[anchor, 1]
+                    if nn > tiny * tiny:
+                        line = True
+                        l00 = Nn[anchor, 0] * (beta / nn)
+                        l01 = Nn[anchor, 1] * (beta / nn)
+                        sq = np.sqrt(nn)
+                        d0 = -Nn[anchor, 1] / sq
+                        d1 = Nn[anchor, 0] / sq
+            if line:
+                lo = -np.inf
+                hi = np.inf
+                for i in range(m):
+                    if r == 1:
+                        g = Nn[i, 0]
+                        f = cc[i]
+                    else:
+                        g = Nn[i, 0] * d0 + Nn[i, 1] * d1
+                        f = cc[i] + (Nn[i, 0] * l00 + Nn[i, 1] * l01)
+                    if abs(g) > tiny:
+                        room = h[i] - bn
+                        ea = (-room - f) / g
+                        eb = (room - f) / g
+                        lo = max(lo, min(ea, eb))
+                        hi = min(hi, max(ea, eb))
+                if np.isfinite(lo) and np.isfinite(hi):
+                    mu = 0.5 * (lo + hi)
+                elif np.isfinite(lo):
+                    mu = lo
+                elif np.isfinite(hi):
+                    mu = hi
+                else:
+                    mu = 0.0
+                if r == 1:
+                    lam[0] = mu
+                else:
+                    lam[0] = l00 + mu * d0
+                    lam[1] = l01 + mu * d1
+                st = 0
         if st == 0:
             mt = np.inf
             for i in range(m):
