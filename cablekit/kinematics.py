@@ -18,6 +18,9 @@ from .symbolic import numeric
 
 __all__ = [
     "as_poses",
+    "ZERO_LENGTH",
+    "zero_length_cables",
+    "positions_at_exits",
     "cable_vectors",
     "cable_lengths",
     "unit_vectors",
@@ -38,6 +41,9 @@ __all__ = [
 ]
 
 CHUNK = 4096  # poses per evaluation chunk: keeps temporaries in cache (see README benchmarks)
+# a cable shorter than this share of the rig's size (at least 1 m) counts as zero length: its
+# attachment sits at its exit and its direction is undefined [m/m]
+ZERO_LENGTH = 1e-9
 
 
 class KinematicsError(ValueError):
@@ -80,8 +86,37 @@ def _evaluate(design, what: str, poses, exits=None, attachments=None) -> np.ndar
         ac = a[s:e] if a.ndim == 3 else a[None]
         bc = b[s:e] if b.ndim == 3 else b[None]
         args = [qc[..., j] for j in range(n)] + [ac[..., j] for j in range(3)] + [bc[..., j] for j in range(3)]
-        out[s:e] = np.broadcast_to(fn(*args), (e - s, m, k))
+        with np.errstate(divide="ignore", invalid="ignore"):  # zero-length cables: NaN, see zero_length_cables
+            out[s:e] = np.broadcast_to(fn(*args), (e - s, m, k))
     return out
+
+
+def zero_length_cables(design, poses, *, exits=None, attachments=None) -> np.ndarray:
+    """(N, m) True where a cable has (near) zero length: its attachment sits at its exit.
+
+    There the cable's direction, and so its column of the structure matrix, is undefined (NaN):
+    no tensions can be computed and the pose counts as singular.  "Zero" is
+    ``L <= ZERO_LENGTH * max(1 m, largest exit coordinate)``.
+    """
+    a, _ = _geometry(design, exits, attachments)
+    L = cable_lengths(design, poses, exits=exits, attachments=attachments)
+    return ~(L > ZERO_LENGTH * max(1.0, float(np.max(np.abs(a)))))
+
+
+def positions_at_exits(design, orientations=((0.0, 0.0, 0.0),)) -> np.ndarray:
+    """Platform positions that put an attachment exactly at its exit: ``p = a_i - R b_i`` [m].
+
+    orientations : (K, 3) roll, pitch, yaw [rad] (ignored for a point platform, where the
+    positions are the exits).  Returns (K, m, 3); at these positions the cable has zero length
+    and the pose is singular (see :func:`zero_length_cables`).
+    """
+    a, b = _geometry(design, None, None)
+    if design.dof == 3:
+        return a[None].copy()
+    from .statics import rotation_matrices
+
+    R = rotation_matrices(np.asarray(orientations, float).reshape(-1, 3))
+    return a[None] - np.einsum("kij,mj->kmi", R, b)
 
 
 def cable_vectors(design, poses, *, exits=None, attachments=None) -> np.ndarray:

@@ -13,11 +13,11 @@ wrench-feasible set).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 
 import numpy as np
 
-from .kinematics import as_poses, structure_matrix
+from .kinematics import as_poses, structure_matrix, zero_length_cables
 from .practice import practice_value
 
 __all__ = [
@@ -31,6 +31,8 @@ __all__ = [
     "motor_cable_force",
     "tensions_at",
     "solve_tensions",
+    "SINGULAR_NOTE",
+    "without_singular",
 ]
 
 
@@ -235,14 +237,52 @@ def solve_lp(W, w_ext, t_min, t_max) -> TensionResult:
                          method="max-margin (linear program, HiGHS)")
 
 
-def solve_tensions(W, w_ext, t_min, t_max, *, method: str = "auto") -> TensionResult:
+# what a singular pose (undefined structure matrix) gets in every per-pose field of a result
+_SINGULAR_FILL = {"tensions": np.nan, "feasible": False, "margin": -np.inf, "limiting_cable": -1,
+                  "nominal_margin": -np.inf, "active_lower": False, "active_upper": False, "by_lp": False}
+SINGULAR_NOTE = "no solution / singular (a cable of zero length: attachment at its exit)"
+
+
+def without_singular(solve, W, w_ext, singular):
+    """Run ``solve(W, w_ext)`` on the poses not marked ``singular`` and fill in the others.
+
+    ``singular`` (N,) bool marks poses whose structure matrix is undefined (a cable of zero
+    length, see :func:`cablekit.kinematics.zero_length_cables`); their ``W`` may hold NaN.  They
+    come back infeasible with no tensions (NaN), margin ``-inf`` and limiting cable -1, and the
+    result's ``method`` counts them.  ``solve`` returns a :class:`TensionResult` (or subclass).
+    """
+    W = np.asarray(W, float)
+    N = W.shape[0]
+    w = np.broadcast_to(np.asarray(w_ext, float), (N, W.shape[1]))
+    sing = np.broadcast_to(np.asarray(singular, bool), (N,))
+    if not np.any(sing):
+        return solve(W, w)
+    keep = np.flatnonzero(~sing)
+    res = solve(W[keep], w[keep])
+    out = {}
+    for f in fields(res):
+        v = getattr(res, f.name)
+        if f.name in _SINGULAR_FILL:
+            full = np.full((N,) + v.shape[1:], _SINGULAR_FILL[f.name], dtype=v.dtype)
+            full[keep] = v
+            out[f.name] = full
+    out["method"] = f"{res.method}; {int(sing.sum())} pose(s) {SINGULAR_NOTE}"
+    return replace(res, **out)
+
+
+def solve_tensions(W, w_ext, t_min, t_max, *, method: str = "auto", singular=None) -> TensionResult:
     """Tension distribution for stacked structure matrices (N, n, m) and wrenches (N, n).
 
     ``method="auto"``: the unique solution when m = n, else the fast exact batched path of
     :func:`cablekit.tension.distribute`; ``"lp"``: the per-pose linear program.
+    ``singular``: optional (N,) bool of poses with an undefined structure matrix (see
+    :func:`without_singular`); they are classified "no solution / singular", not solved.
     """
     if method not in ("auto", "lp"):
         raise ValueError(f"method must be 'auto' or 'lp', got {method!r}")
+    if singular is not None:
+        return without_singular(lambda Ws, ws: solve_tensions(Ws, ws, t_min, t_max, method=method), W, w_ext,
+                                singular)
     W = np.asarray(W, float)
     if method == "lp":
         return solve_lp(W, w_ext, t_min, t_max)
@@ -257,8 +297,11 @@ def tensions_at(design, poses, *, extra=None, method: str = "auto") -> TensionRe
     """Tensions for the design at ``poses`` under gravity (+ ``extra`` wrench).
 
     ``method="auto"`` uses the fast exact batched path, ``"lp"`` the per-pose linear program.
+    A pose with a cable of zero length (an attachment exactly at its exit) has no structure
+    matrix: it comes back infeasible, "no solution / singular" (see :func:`without_singular`).
     """
     q = as_poses(design, poses)
     lim = tension_limits(design)
+    sing = np.any(zero_length_cables(design, q), axis=1)
     return solve_tensions(structure_matrix(design, q), external_wrench(design, q, extra=extra), lim.t_min,
-                          lim.t_max, method=method)
+                          lim.t_max, method=method, singular=sing if np.any(sing) else None)

@@ -67,7 +67,7 @@ from itertools import combinations
 
 import numpy as np
 
-from .statics import TensionResult, solve_lp, solve_square
+from .statics import TensionResult, solve_lp, solve_square, without_singular
 
 __all__ = ["TensionDetail", "distribute", "box_generators", "box_vertices", "HAVE_NUMBA", "BACKENDS"]
 
@@ -839,7 +839,7 @@ def _by_lp(W, w, D, t_min, t_max):
 
 
 def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto",
-               chunk: int = CHUNK) -> TensionDetail:
+               chunk: int = CHUNK, singular=None) -> TensionDetail:
     """Max-margin tensions, exact feasibility and margin for N poses.
 
     Parameters
@@ -852,6 +852,9 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
     backend : "auto" (compiled kernel when numba is installed, else NumPy), "numba",
         "numpy", or "lp" (the per-pose scipy HiGHS reference, slow).
     chunk : poses per chunk (NumPy temporaries; one compiled call per chunk and thread).
+    singular : optional (N,) bool, poses whose ``W`` is undefined (a cable of zero length, see
+        :func:`cablekit.kinematics.zero_length_cables`; their ``W`` may hold NaN).  They are
+        not solved and come back infeasible, "no solution / singular" (margin ``-inf``).
 
     Returns
     -------
@@ -875,12 +878,18 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
     N, n, m = W.shape
     if m < n:
         raise ValueError(f"{m} cables cannot hold {n} degrees of freedom (need m >= n)")
+    if singular is not None and np.any(singular):
+        return without_singular(lambda Ws, ws: distribute(Ws, ws, t_min, t_max, wrench_box=wrench_box,
+                                                          backend=backend, chunk=chunk), W, w_ext, singular)
     w = np.broadcast_to(np.asarray(w_ext, float), (N, n))
     t_min = np.broadcast_to(np.asarray(t_min, float), (m,)).copy()
     t_max = np.broadcast_to(np.asarray(t_max, float), (m,)).copy()
     for name, arr in (("W", W), ("w_ext", w), ("t_min", t_min), ("t_max", t_max)):
         if not np.all(np.isfinite(arr)):
-            raise ValueError(f"{name} contains NaN or infinite values")
+            where = f" (first at pose {int(np.argwhere(~np.isfinite(arr))[0, 0])})" if arr.ndim >= 2 else ""
+            hint = ("; a pose with a cable of zero length has no structure matrix: mark it with singular="
+                    if name == "W" else "")
+            raise ValueError(f"{name} contains NaN or infinite values{where}{hint}")
     D = np.zeros((0, n)) if wrench_box is None else box_generators(wrench_box, n)
     r = m - n
     mid = 0.5 * (t_max + t_min)
@@ -893,20 +902,20 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
                              nominal_margin=nom, active_lower=lo, active_upper=hi, by_lp=np.ones(N, bool))
 
     use_numba = backend == "numba" or (backend == "auto" and _kernel is not None)
-    Rhs = None if (r == 0 and (len(D) == 0 or not use_numba)) else \
-        np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
     if r == 0 and n == 3 and len(D) == 0 and use_numba:
         T, margin, nom, lim, lo, hi, status = _run_square3(W, w, mid, h, chunk)
         path = "unique solution (m = n), compiled"
     elif r == 0 and not use_numba:
         T, margin, nom, lim, lo, hi, status = _square_numpy(W, w, D, mid, h, t_min, t_max)
         path = "unique solution (m = n)"
-    elif use_numba:
-        T, margin, nom, lim, lo, hi, status = _run_numba(W, Rhs, mid, h, t_min, t_max, chunk)
-        path = "unique solution (m = n), compiled" if r == 0 else f"exact null-space test (m - n = {r}), compiled"
-    else:
-        T, margin, nom, lim, lo, hi, status = _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk)
-        path = f"exact null-space test (m - n = {r}), NumPy"
+    else:  # the general kernel: right-hand sides are the load and the box generators
+        Rhs = np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
+        if use_numba:
+            T, margin, nom, lim, lo, hi, status = _run_numba(W, Rhs, mid, h, t_min, t_max, chunk)
+            path = "unique solution (m = n), compiled" if r == 0 else f"exact null-space test (m - n = {r}), compiled"
+        else:
+            T, margin, nom, lim, lo, hi, status = _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk)
+            path = f"exact null-space test (m - n = {r}), NumPy"
 
     # the exact fallback: LP for rank-deficient poses; LP tensions where the optimum is not a vertex
     full = np.flatnonzero(status == _BY_LP)

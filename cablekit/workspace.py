@@ -24,7 +24,7 @@ bit  name            meaning
 8    interference    two cable segments closer than the sum of their radii
 16   body            a cable passes through the platform body box
 32   obstacle        a cable passes through a declared obstacle box
-64   no_solution     no tensions balance the load at all (singular pose)
+64   no_solution     no tensions balance the load at all (singular pose, e.g. an attachment at its exit)
 ===  ==============  ===========================================================
 
 "Best tensions" are the max-margin tensions at the worst wrench of the box; the tension bits
@@ -66,7 +66,7 @@ import numpy as np
 
 from .checks import Check, judge
 from .design import atomic_write_bytes
-from .kinematics import structure_matrix
+from .kinematics import structure_matrix, zero_length_cables
 from .practice import PRACTICE, practice_value
 from .region import task_poses
 from .statics import external_wrench, rotation_matrices, tension_limits
@@ -90,7 +90,7 @@ CHUNK = 8192  # poses per step of the map (progress is reported after each)
 
 # name -> (bit, label); the order is the order of precedence when one reason is shown
 REASONS: dict[str, tuple[int, str]] = {
-    "no_solution": (64, "no tensions balance the load"),
+    "no_solution": (64, "no solution / singular pose"),
     "interference": (8, "cables touch each other"),
     "body": (16, "cable through the platform body"),
     "obstacle": (32, "cable through an obstacle"),
@@ -614,9 +614,10 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         q = q_all[s:e]
         W = structure_matrix(design, q)
         w_g = external_wrench(design, q)
+        sing = np.any(zero_length_cables(design, q), axis=1)  # attachment at an exit: no solution / singular
         res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=box if np.any(box > 0) else None,
-                         backend=backend)
-        stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend) if loaded else res
+                         backend=backend, singular=sing)
+        stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend, singular=sing) if loaded else res
         methods.add(res.method.split("; ")[1])
         lp_poses += int(res.by_lp.sum()) + (int(stat.by_lp.sum()) if loaded else 0)
         clearance, body, obstacle = _geometry(design, q, pairs)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..design import load_design
-from ..kinematics import home_lengths, length_per_count
+from ..kinematics import ZERO_LENGTH, home_lengths, length_per_count, positions_at_exits
 from ..statics import tension_limits
 
 NAME = "check"
@@ -59,7 +59,29 @@ def summary_lines(d) -> tuple[list[str], list[str]]:
         warnings.append("some exits are eyelets (pulley_diameter 0): the D/d check cannot be done for them")
     if not all(w.brake for w in d.winches):
         warnings.append("not every winch has a holding brake: a suspended load drops on power loss")
+    warnings += exit_contact_warnings(d)
     return lines, warnings
+
+
+def exit_contact_warnings(d) -> list[str]:
+    """Warnings where the task region (box or points, any task orientation) reaches a pose that
+    puts an attachment exactly at its exit: a zero-length cable, a singular pose."""
+    t = d.task
+    orient = t.orientations if d.dof == 6 else ((0.0, 0.0, 0.0),)
+    P = positions_at_exits(d, orient)  # (K, m, 3)
+    tol = ZERO_LENGTH * max(1.0, float(np.max(np.abs(d.exits))))
+    hit = np.zeros(P.shape[:2], bool)
+    if t.box_lower is not None:
+        hit |= np.all((P >= np.array(t.box_lower) - tol) & (P <= np.array(t.box_upper) + tol), axis=2)
+    for pt in t.points:
+        hit |= np.linalg.norm(P - np.array(pt), axis=2) <= tol
+    out = []
+    for k, i in zip(*np.nonzero(hit)):
+        pos = ", ".join(f"{v:g}" for v in P[k, i])
+        ang = f", orientation {', '.join(f'{np.degrees(v):g}' for v in orient[k])} deg" if d.dof == 6 else ""
+        out.append(f"the task region touches exit {d.cable_names[i]}: at position ({pos}) m{ang} its cable has "
+                   "zero length; that pose is singular (no solution) and is mapped infeasible")
+    return out
 
 
 def run(args) -> int:
