@@ -686,7 +686,8 @@ def monte_carlo(design, model: LinearModel, rows, *, samples: int = 10_000, seed
     solved = np.empty((P, samples), bool)
     for j, r in enumerate(rows):
         Lact = _actual_lengths(design, model, r, draws)
-        fk = forward_kinematics(design, Lact, guess=model.poses[r], exits=exits, consistency_tol=np.inf)  # warm start: no restarts
+        fk = forward_kinematics(design, Lact, guess=model.poses[r], exits=exits, consistency_tol=np.inf,
+                                starts=1)  # warm start: no restarts
         q = fk.poses
         errors[j] = q - model.poses[r]
         # at a least-squares solution J^T (L(q) - L_act) = 0, so the Gauss-Newton step still to

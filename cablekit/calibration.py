@@ -129,7 +129,8 @@ def _predict(design, params, theta, counts, guess):
     bad = ~(step < 1e-9) | ~np.all(np.isfinite(q), axis=1)
     if np.any(bad):
         try:
-            q[bad] = forward_kinematics(design, L[bad], guess=guess[bad], exits=exits, consistency_tol=np.inf).poses
+            q[bad] = forward_kinematics(design, L[bad], guess=guess[bad], exits=exits, consistency_tol=np.inf,
+                                        starts=1).poses
         except KinematicsError:
             q[bad] = np.nan
     return q, exits
@@ -411,7 +412,7 @@ def synthetic_measurements(design, commanded, *, exit_offsets=None, home_offsets
         db = np.array([int(w.deadband_counts) for w in design.winches])
         c = c + rng.integers(-db, db + 1, size=c.shape)
     L = home_lengths(design) + dh + c * length_per_count(design) * (1.0 + dD / pitch)
-    fk = forward_kinematics(design, L, guess=qc, exits=design.exits + da, consistency_tol=np.inf)
+    fk = forward_kinematics(design, L, guess=qc, exits=design.exits + da, consistency_tol=np.inf, starts=1)
     measured = fk.poses[:, :3] + rng.normal(0.0, noise, (len(qc), 3))
     names = [f"P{k + 1}" for k in range(P)] if labels is None else list(labels)
     return Measurements(labels=np.array(np.repeat(names, cycles), dtype=object),
