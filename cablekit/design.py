@@ -255,6 +255,10 @@ class Exit:
         used for the fleet angle; 0 when unknown.
     home_length : measured or calibrated cable length at the home pose [m]; ``None`` means
         "computed from ``home.pose`` by inverse kinematics".
+    min_tension : this cable's least taut tension [N]; ``None`` means ``cable.min_tension``.
+    max_tension : a tension limit stated for this cable [N]; ``None`` means ``cable.max_tension``
+        (if any).  The limit in force is the lowest of it, rope and motor
+        (:func:`cablekit.statics.tension_limits`).
     """
 
     name: str
@@ -262,6 +266,8 @@ class Exit:
     pulley_diameter: float = 0.0
     drum_distance: float = 0.0
     home_length: float | None = None
+    min_tension: float | None = None
+    max_tension: float | None = None
 
 
 @dataclass(frozen=True)
@@ -310,7 +316,8 @@ class Cable:
 
     diameter [m]; breaking_force: minimum breaking force [N]; axial_stiffness: EA [N];
     mass_per_length [kg/m]; min_tension: the least tension that counts as taut [N];
-    construction: free text such as ``"7x19 galvanised"``.
+    construction: free text such as ``"7x19 galvanised"``; max_tension: a tension limit stated
+    for every cable [N] (``None``: only rope and motor limit it).
     """
 
     diameter: float
@@ -319,6 +326,7 @@ class Cable:
     mass_per_length: float
     min_tension: float
     construction: str = ""
+    max_tension: float | None = None
 
 
 @dataclass(frozen=True)
@@ -498,7 +506,8 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
             c.add(p, e, "expected a table with name and position")
             ok = False
             continue
-        c.unknown(e, {"name", "position", "pulley_diameter", "drum_distance", "home_length"}, p)
+        c.unknown(e, {"name", "position", "pulley_diameter", "drum_distance", "home_length", "min_tension",
+                      "max_tension"}, p)
         name = c.text(e, "name", p, default=f"C{k + 1}")
         if name is not None and name in seen:
             c.add(f"{p}.name", name, "cable names must be unique")
@@ -507,10 +516,14 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
         pd = c.quantity(e, "pulley_diameter", "length", p, required=False, nonnegative=True, default=0.0)
         dd = c.quantity(e, "drum_distance", "length", p, required=False, nonnegative=True, default=0.0)
         hl = c.quantity(e, "home_length", "length", p, required=False, positive=True, default=None)
-        if None in (name, pos, pd, dd) or ("home_length" in e and hl is None):
+        tlo = c.quantity(e, "min_tension", "force", p, required=False, positive=True, default=None)
+        thi = c.quantity(e, "max_tension", "force", p, required=False, positive=True, default=None)
+        if None in (name, pos, pd, dd) or ("home_length" in e and hl is None) or \
+                any(k in e and v is None for k, v in (("min_tension", tlo), ("max_tension", thi))):
             ok = False
             continue
-        exits.append(Exit(name=name, position=pos, pulley_diameter=pd, drum_distance=dd, home_length=hl))
+        exits.append(Exit(name=name, position=pos, pulley_diameter=pd, drum_distance=dd, home_length=hl,
+                          min_tension=tlo, max_tension=thi))
     obstacles: list[Obstacle] = []
     obs_raw = t.get("obstacles", [])
     if not isinstance(obs_raw, list):
@@ -613,7 +626,7 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     if t is None:
         return None
     c.unknown(t, {"diameter", "breaking_force", "axial_stiffness", "modulus", "metallic_area",
-                  "mass_per_length", "min_tension", "construction"}, "cable")
+                  "mass_per_length", "min_tension", "construction", "max_tension"}, "cable")
     d = c.quantity(t, "diameter", "length", "cable", positive=True)
     mbf = c.quantity(t, "breaking_force", "force", "cable", positive=True)
     if "axial_stiffness" in t:
@@ -633,10 +646,11 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     construction = c.text(t, "construction", "cable", default="")
     if mbf is not None and tmin is not None and tmin >= mbf:
         c.add("cable.min_tension", t.get("min_tension"), "must be below the breaking force")
-    if None in (d, mbf, ea, mpl, tmin, construction):
+    tmax = c.quantity(t, "max_tension", "force", "cable", required=False, positive=True, default=None)
+    if None in (d, mbf, ea, mpl, tmin, construction) or ("max_tension" in t and tmax is None):
         return None
     return Cable(diameter=d, breaking_force=mbf, axial_stiffness=ea, mass_per_length=mpl,
-                 min_tension=tmin, construction=construction)
+                 min_tension=tmin, construction=construction, max_tension=tmax)
 
 
 _WINCH_KEYS = {"drum_diameter", "drum_width", "flange_diameter", "grooved", "gear_ratio", "efficiency",
@@ -885,6 +899,18 @@ def _check_geometry(c: _Collector, d: Design) -> None:
             return
 
 
+def _check_tension_limits(c: _Collector, d: Design) -> None:
+    """Each cable's least taut tension below its stated limit and the breaking force."""
+    for k, e in enumerate(d.frame.exits):
+        lo = d.cable.min_tension if e.min_tension is None else e.min_tension
+        hi = d.cable.max_tension if e.max_tension is None else e.max_tension
+        where = f"frame.exits[{k}].min_tension" if e.min_tension is not None else "cable.min_tension"
+        if lo >= d.cable.breaking_force:
+            c.add(where, f"{lo:g} N", f"below the breaking force {d.cable.breaking_force:g} N (cable {e.name})")
+        elif hi is not None and lo >= hi:
+            c.add(where, f"{lo:g} N", f"below the stated max_tension {hi:g} N of cable {e.name}")
+
+
 def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     """Validate a parsed TOML document and build a :class:`Design` (SI floats).
 
@@ -918,6 +944,7 @@ def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     design = Design(meta=meta, frame=frame, platform=platform, cable=cable, winches=winches, payload=payload,
                     task=task, home_pose=tuple(home), practice=practice)
     _check_geometry(c, design)
+    _check_tension_limits(c, design)
     if c.problems:
         raise DesignError(c.problems, source)
     # optional sections owned by other modules
@@ -994,6 +1021,9 @@ def design_to_dict(d: Design) -> dict:
             t["drum_distance"] = _q(e.drum_distance, "length")
         if e.home_length is not None:
             t["home_length"] = _q(e.home_length, "length")
+        for key in ("min_tension", "max_tension"):
+            if getattr(e, key) is not None:
+                t[key] = _q(getattr(e, key), "force")
         exits.append(t)
     frame: dict[str, Any] = {"gravity_direction": _v(d.frame.gravity_direction, "dimensionless"),
                              "g": _q(d.frame.g, "acceleration"), "exits": exits}
@@ -1015,6 +1045,8 @@ def design_to_dict(d: Design) -> dict:
              "min_tension": _q(cb.min_tension, "force")}
     if cb.construction:
         cable["construction"] = cb.construction
+    if cb.max_tension is not None:
+        cable["max_tension"] = _q(cb.max_tension, "force")
     doc["cable"] = cable
 
     def winch(w: Winch) -> dict:

@@ -541,7 +541,11 @@ def _rig_part(design, results: Mapping[str, Any], progress: Progress) -> Part:
                      lim.rope_limit[i], "N", n, "cablekit.statics.tension_limits"),
             Quantity(f"motor_limit:{n}", "motor limit (rated torque through gears and drum)", lim.motor_limit[i],
                      lim.motor_limit[i], "N", n, "cablekit.statics.tension_limits"),
-            Quantity(f"t_max:{n}", f"highest allowed tension (limited by the {lim.limited_by[i]})", lim.t_max[i],
+            *([Quantity(f"stated_limit:{n}", "stated tension limit (max_tension in the design)", lim.stated_limit[i],
+                        lim.stated_limit[i], "N", n, "cablekit.statics.tension_limits")]
+              if np.isfinite(lim.stated_limit[i]) else []),
+            Quantity(f"t_max:{n}", "highest allowed tension (limited by the "
+                     f"{'stated max_tension' if lim.limited_by[i] == 'stated' else lim.limited_by[i]})", lim.t_max[i],
                      lim.t_max[i], "N", n, "cablekit.statics.tension_limits"),
         ]
     q += _tension_range(design, grid, results, progress)

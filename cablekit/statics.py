@@ -40,9 +40,11 @@ __all__ = [
 class TensionLimits:
     """Per-cable tension limits [N], shape (m,) each.
 
-    t_min : least tension that counts as taut; rope_limit : breaking force / design factor;
-    motor_limit : what the winch motor's rated torque pulls through gears and drum;
-    t_max : the lower of the two; limited_by : "rope" or "motor" per cable.
+    t_min : least tension that counts as taut (the cable's own ``min_tension`` where stated,
+    else ``cable.min_tension``); rope_limit : breaking force / design factor; motor_limit : what
+    the winch motor's rated torque pulls through gears and drum; stated_limit : the design's
+    ``max_tension`` for the cable (inf where none is stated); t_max : the lowest of the three;
+    limited_by : "stated", "rope" or "motor" per cable (the first of these on a tie).
     """
 
     t_min: np.ndarray
@@ -51,6 +53,7 @@ class TensionLimits:
     t_max: np.ndarray
     limited_by: tuple[str, ...]
     design_factor: float
+    stated_limit: np.ndarray | None = None
 
 
 def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficiency):
@@ -64,16 +67,24 @@ def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficien
 
 
 def tension_limits(design) -> TensionLimits:
-    """Tension limits of every cable: ``t_max = min(MBF / design factor, motor limit)``."""
+    """Tension limits of every cable: ``t_max = min(stated max_tension, MBF / design factor, motor limit)``.
+
+    The stated limit is the cable's own ``[[frame.exits]] max_tension``, else ``[cable]
+    max_tension``, else none; ``t_min`` likewise the cable's own ``min_tension`` or the shared one.
+    """
     m = design.m
     df = practice_value("rope_design_factor", design.practice)
     rope = np.full(m, design.cable.breaking_force / df)
     motor = np.array([motor_cable_force(w.motor_rated_torque, w.drum_diameter, design.cable.diameter,
                                         w.gear_ratio, w.efficiency) for w in design.winches], dtype=float)
-    t_max = np.minimum(rope, motor)
-    by = tuple("rope" if r <= mo else "motor" for r, mo in zip(rope, motor))
-    return TensionLimits(t_min=np.full(m, design.cable.min_tension), rope_limit=rope, motor_limit=motor,
-                         t_max=t_max, limited_by=by, design_factor=df)
+    exits = design.frame.exits
+    shared = np.inf if design.cable.max_tension is None else design.cable.max_tension
+    stated = np.array([shared if e.max_tension is None else e.max_tension for e in exits], dtype=float)
+    t_min = np.array([design.cable.min_tension if e.min_tension is None else e.min_tension for e in exits], float)
+    t_max = np.minimum(stated, np.minimum(rope, motor))
+    by = tuple("stated" if st <= min(r, mo) else "rope" if r <= mo else "motor" for st, r, mo in zip(stated, rope, motor))
+    return TensionLimits(t_min=t_min, rope_limit=rope, motor_limit=motor, t_max=t_max, limited_by=by,
+                         design_factor=df, stated_limit=stated)
 
 
 def rotation_matrices(angles) -> np.ndarray:

@@ -28,10 +28,11 @@ def summary_lines(d) -> tuple[list[str], list[str]]:
     lim = tension_limits(d)
     hl = home_lengths(d)
     lpc = length_per_count(d)
-    lines.append("  cable      exit point [m]            home length [m]  per count [um]  t_max [N] (limited by)")
+    lines.append("  cable      exit point [m]            home length [m]  per count [um]  t_max [N] (limited by)  t_min [N]")
     for i, e in enumerate(d.frame.exits):
         pos = ", ".join(f"{v:6.3f}" for v in e.position)
-        lines.append(f"  {e.name:<10} ({pos})   {hl[i]:10.4f}     {lpc[i] * 1e6:12.3f}  {lim.t_max[i]:9.1f} ({lim.limited_by[i]})")
+        lines.append(f"  {e.name:<10} ({pos})   {hl[i]:10.4f}     {lpc[i] * 1e6:12.3f}  {lim.t_max[i]:9.1f} "
+                     f"({lim.limited_by[i]}){'':<{8 - len(lim.limited_by[i])}} {lim.t_min[i]:9.1f}")
     w = d.winches[0]
     shared = all(x == w for x in d.winches)
     lines.append(f"  winches  : {'one shared spec' if shared else 'per cable'}: drum {w.drum_diameter * 1e3:g} mm, "
