@@ -270,13 +270,13 @@ class FKResult:
     residual: np.ndarray
     converged: np.ndarray
     iterations: int
-    tolerance: np.ndarray | None = None
-    tolerance_basis: str = ""
-    error_bound: np.ndarray | None = None
-    condition: np.ndarray | None = None
-    ill_conditioned: np.ndarray | None = None
-    ambiguous: np.ndarray | None = None
-    starts: int = 1
+    tolerance: np.ndarray
+    tolerance_basis: str
+    error_bound: np.ndarray
+    condition: np.ndarray
+    ill_conditioned: np.ndarray
+    ambiguous: np.ndarray
+    starts: int
 
     def summary(self) -> list[str]:
         """Text lines: how many poses converged and what "converged" means here."""
@@ -286,9 +286,9 @@ class FKResult:
                  f"  converged means: RMS length residual <= {float(np.max(self.tolerance)):.3g} m "
                  f"({self.tolerance_basis}), no other start fits as well at another pose, condition number "
                  f"<= {CONDITION_LIMIT:g}"]
-        if self.ambiguous is not None and np.any(self.ambiguous):
+        if np.any(self.ambiguous):
             lines.append(f"  ambiguous: {int(np.sum(self.ambiguous))} poses (another pose fits the lengths as well)")
-        if self.ill_conditioned is not None and np.any(self.ill_conditioned):
+        if np.any(self.ill_conditioned):
             lines.append(f"  ill-conditioned: {int(np.sum(self.ill_conditioned))} poses (lengths barely fix the pose)")
         if N:
             lines.append(f"  largest RMS residual {float(np.max(self.residual)):.3g} m; largest error bound "
@@ -412,6 +412,11 @@ def _levenberg_marquardt(design, L, q, a, b, tol, max_iter):
     return q, residual, ~active | (cost < 1e-28), it
 
 
+def _platform_radius(b) -> float:
+    """Largest attachment distance from the platform reference point [m] (at least 1 mm)."""
+    return max(float(np.max(np.linalg.norm(np.atleast_2d(b).reshape(-1, 3), axis=1))), 1e-3)
+
+
 def _conditioning(design, q, residual, a, b):
     """Error bound ``||r|| / sigma_min(J)`` and the condition number of the scaled Jacobian."""
     J = length_jacobian(design, q, exits=a, attachments=b)
@@ -419,8 +424,7 @@ def _conditioning(design, q, residual, a, b):
     sv = np.linalg.svd(J, compute_uv=False)
     bound = np.sqrt(m) * residual / np.maximum(sv[:, -1], 1e-300)
     if n == 6:
-        radius = float(np.max(np.linalg.norm(np.atleast_2d(b).reshape(-1, 3), axis=1)))
-        scale = np.r_[np.ones(3), np.full(3, 1.0 / max(radius, 1e-3))]  # angle x radius: arc length [m]
+        scale = np.r_[np.ones(3), np.full(3, 1.0 / _platform_radius(b))]  # angle x radius: arc length [m]
         sv = np.linalg.svd(J * scale, compute_uv=False)
     cond = sv[:, 0] / np.maximum(sv[:, -1], 1e-300)
     return bound, cond
@@ -516,12 +520,12 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
     if K > 1:
         from .statics import rotation_matrices
 
-        radius = float(np.max(np.linalg.norm(np.atleast_2d(b).reshape(-1, 3), axis=1))) if n == 6 else 0.0
+        radius = _platform_radius(b)
         near = 1e-6 * scale_len
         Rb = rotation_matrices(q[:, 3:])
         for k in range(K):
             dp = np.linalg.norm(qs[k, :, :3] - q[:, :3], axis=1)
-            dr = np.linalg.norm(rotation_matrices(qs[k, :, 3:]) - Rb, axis=(1, 2)) * max(radius, 1e-3)
+            dr = np.linalg.norm(rotation_matrices(qs[k, :, 3:]) - Rb, axis=(1, 2)) * radius
             ambiguous |= fits[k] & ((dp > near) | (dr > near))
     bound, cond = _conditioning(design, q, residual, a, b)
     ill = ~(cond <= CONDITION_LIMIT)

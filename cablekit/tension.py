@@ -40,9 +40,13 @@ Paths: m = n has unique tensions: :func:`cablekit.statics.solve_square` in NumPy
 compiled for three cables, the same row reduction as below for a wrench box.  r = 1 and 2 use
 the candidate formula above, in a compiled kernel (row reduction with complete pivoting, then
 the candidates) when numba is installed and in NumPy (QR null space) otherwise; the tests hold
-every path to the others and to scipy's LP.  Larger redundancy, rank-deficient poses, and the
-rare pose whose optimal tensions are not a unique vertex go to the per-pose HiGHS linear
-program (:func:`cablekit.statics.solve_lp`), so the classification is always exact.
+every path to the others and to scipy's LP.  Where the optimum is tied (the optimal tensions
+form a segment, not a vertex: a binding dependency of only ``r`` cables, as at symmetric poses
+of box-shaped rigs, or the narrowest cable pinned at its centre) the tensions are the middle of
+the optimal interval along the line that binding fixes, checked to reach the margin.  Larger
+redundancy, rank-deficient poses and the rare pose that check still rejects go to the per-pose
+HiGHS linear program (:func:`cablekit.statics.solve_lp`), so the classification is always
+exact.  Poses marked ``singular`` (a cable of zero length) are not solved: no solution.
 
 References
 ----------
