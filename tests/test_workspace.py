@@ -366,3 +366,7 @@ def test_attachment_at_an_exit_is_no_solution_and_the_rest_is_mapped(tmp_path, c
     assert "the task region touches exit B1" in capsys.readouterr().out
     assert main(["workspace", str(LOFT), "-o", str(tmp_path / "loft.npz"), "--quiet"]) == 0
     assert "no solution / singular pose 8" in capsys.readouterr().out
+    pts = tmp_path / "loft_points.csv"
+    pts.write_text("x [m],y [m],z [m],roll [deg],pitch [deg],yaw [deg]\n2,1.95,1.9,0,0,0\n0.2,0.15,0.1,0,0,0\n")
+    assert main(["points", str(LOFT), str(pts)]) == 0
+    assert "row 2: no solution / singular: cable B1 has zero length" in capsys.readouterr().out

@@ -6,7 +6,7 @@ import numpy as np
 
 from ..cli import InputError
 from ..design import load_design
-from ..kinematics import cable_lengths, lengths_to_counts
+from ..kinematics import cable_lengths, lengths_to_counts, zero_length_cables
 from ..statics import tensions_at, tension_limits
 from ..tables import Column, read_table, write_table
 
@@ -47,12 +47,17 @@ def pose_report(design, poses):
     res = tensions_at(design, poses)
     lim = tension_limits(design)
     names = design.cable_names
+    zero = zero_length_cables(design, poses)
     reasons = []
     for k in range(len(poses)):
         if res.feasible[k]:
             reasons.append("feasible")
             continue
         t = res.tensions[k]
+        if np.any(zero[k]):
+            reasons.append("no solution / singular: cable " + ", ".join(n for n, z in zip(names, zero[k]) if z)
+                           + " has zero length (attachment at its exit)")
+            continue
         if not np.all(np.isfinite(t)):
             reasons.append("no tension balances the load here (outside the wrench-feasible workspace)")
             continue
