@@ -901,14 +901,17 @@ def _check_geometry(c: _Collector, d: Design) -> None:
 
 def _check_tension_limits(c: _Collector, d: Design) -> None:
     """Each cable's least taut tension below its stated limit and the breaking force."""
+    found: dict[str, tuple[str, str]] = {}  # one problem per field, even when shared by every cable
     for k, e in enumerate(d.frame.exits):
         lo = d.cable.min_tension if e.min_tension is None else e.min_tension
         hi = d.cable.max_tension if e.max_tension is None else e.max_tension
         where = f"frame.exits[{k}].min_tension" if e.min_tension is not None else "cable.min_tension"
         if lo >= d.cable.breaking_force:
-            c.add(where, f"{lo:g} N", f"below the breaking force {d.cable.breaking_force:g} N (cable {e.name})")
+            found.setdefault(where, (f"{lo:g} N", f"below the breaking force {d.cable.breaking_force:g} N"))
         elif hi is not None and lo >= hi:
-            c.add(where, f"{lo:g} N", f"below the stated max_tension {hi:g} N of cable {e.name}")
+            found.setdefault(where, (f"{lo:g} N", f"below the stated max_tension {hi:g} N of cable {e.name}"))
+    for where, (value, expected) in found.items():
+        c.add(where, value, expected)
 
 
 def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
