@@ -53,7 +53,7 @@ class TensionLimits:
     t_max: np.ndarray
     limited_by: tuple[str, ...]
     design_factor: float
-    stated_limit: np.ndarray | None = None
+    stated_limit: np.ndarray
 
 
 def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficiency):
