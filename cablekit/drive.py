@@ -410,9 +410,10 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
     t_exit = exit_side_tension(t, lv @ up, w_len)
     # poses where the rig can hang: every cable taut; with redundant cables the distribution must
     # also have stayed within the limits (its tensions elsewhere are a solver's compromise, not a need)
-    taut = np.all(np.isfinite(t) & (t >= design.cable.min_tension * (1.0 - 1e-9)), axis=1)
+    limits = tension_limits(design)  # per-cable t_min where the design states one
+    taut = np.all(np.isfinite(t) & (t >= limits.t_min * (1.0 - 1e-9)), axis=1)
     if m > design.dof:
-        taut &= np.all(t <= tension_limits(design).t_max * (1.0 + 1e-9), axis=1)
+        taut &= np.all(t <= limits.t_max * (1.0 + 1e-9), axis=1)
     lpc = length_per_count(design)
     L_home = home_lengths(design)
     v = design.task.speed
