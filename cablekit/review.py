@@ -1130,7 +1130,13 @@ def _render_inputs(design) -> str:
                     ("minimum breaking force", _si(c.breaking_force, "kN")),
                     ("axial stiffness EA", _si(c.axial_stiffness, "kN")),
                     ("mass per length", _si(c.mass_per_length, "kg/m")),
-                    ("least taut tension", _si(c.min_tension, "N"))]))
+                    ("least taut tension", _si(c.min_tension, "N"))]
+                   + ([("stated tension limit (max_tension)", _si(c.max_tension, "N"))] if c.max_tension else [])))
+    own = [[_h(e.name), _si(e.min_tension, "N") if e.min_tension is not None else "shared",
+            _si(e.max_tension, "N") if e.max_tension is not None else "shared"]
+           for e in d.frame.exits if e.min_tension is not None or e.max_tension is not None]
+    if own:
+        out.append(_table(["cable", "own least taut tension", "own stated tension limit"], own))
     out.append("<h3>Winches</h3>")
     shared = all(w == d.winches[0] for w in d.winches)
     winches = [d.winches[0]] if shared else list(d.winches)

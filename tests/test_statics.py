@@ -222,6 +222,11 @@ def test_stated_limits_take_the_lowest_and_say_which(greenhouse):
     q = {x.key: x for x in _rig_part(d, {}, lambda _: None).quantities}
     name = d.cable_names[0]
     assert q[f"stated_limit:{name}"].low == 25.0 and "stated max_tension" in q[f"t_max:{name}"].label
+    from cablekit.review import _render_inputs
+
+    inputs = _render_inputs(d)
+    assert "stated tension limit (max_tension)</th><td>30 N" in inputs
+    assert f"<td>{name}</td><td>4 N</td><td>25 N</td>" in inputs
 
 
 @pytest.mark.parametrize("cable_extra, exit0_extra, path, fragment", [
