@@ -134,6 +134,7 @@ def test_converged_fk_poses_are_the_truth_on_a_tilted_box_to_box_rig(loft, tilt)
     q = _tilted(loft, 1000, tilt, seed=3)
     fk = forward_kinematics(loft, cable_lengths(loft, q))
     assert fk.starts == 9 and "exact" in fk.tolerance_basis
+    assert "converged means: RMS length residual <=" in "\n".join(fk.summary())
     assert np.mean(fk.converged) >= 0.99
     err = np.abs(fk.poses - q)
     assert np.max(err[fk.converged, :3]) < 1e-9  # the requirement: 1e-9 m
