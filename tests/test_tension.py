@@ -341,3 +341,34 @@ def test_six_cable_rigid_rig_maps_on_every_path():
                 assert np.allclose(res.margin, vm, atol=1e-8)
         ws = compute_workspace(d, backend=backend)
         assert 0 < ws.coverage < 1 and len(ws.poses) == 882
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_tied_optima_are_solved_exactly_on_the_fast_path(backend):
+    # Two ways the optimal tensions form a segment instead of a vertex: (a) the other six cables'
+    # columns span only five dimensions, so a dependency binds cables 6 and 7 alone; (b) one cable
+    # has a 2 mN range and must sit at its centre (margin = its half-range).  Both once went to
+    # the per-pose LP (241 of 3000 and every pose); verdict and margin against
+    # scipy.optimize.linprog (HiGHS), and the tensions must balance the load and reach the margin.
+    rng = np.random.default_rng(0)
+    N = 600
+    W = rng.normal(size=(N, 6, 8))
+    W[:, :, 5] = np.einsum("nij,nj->ni", W[:, :, :5], rng.normal(size=(N, 5)))
+    w = -np.einsum("nij,nj->ni", W, rng.uniform(5, 60, (N, 8))) + rng.normal(0, 20, (N, 6))
+    lo, hi = np.full(8, 10.0), np.full(8, 50.0)
+    W2 = rng.normal(size=(N, 6, 8))
+    t2 = rng.uniform(12, 48, (N, 8))
+    t2[:, 2] = 30.001
+    w2 = -np.einsum("nij,nj->ni", W2, t2)
+    lo2, hi2 = lo.copy(), hi.copy()
+    lo2[2], hi2[2] = 30.0, 30.002
+    for Wc, wc, a, b in ((W, w, lo, hi), (W2, w2, lo2, hi2)):
+        res = distribute(Wc, wc, a, b, backend=backend)
+        ref = solve_lp(Wc, wc, a, b)
+        assert not res.by_lp.any()
+        assert np.array_equal(res.feasible, ref.feasible) and 0 < ref.feasible.sum()
+        assert np.allclose(res.margin, ref.margin, rtol=0, atol=1e-6)  # HiGHS tolerance, about 1e-7 relative
+        assert np.allclose(np.einsum("nij,nj->ni", Wc, res.tensions) + wc, 0, atol=1e-8)
+        own = np.min(np.minimum(res.tensions - a, b - res.tensions), axis=1)
+        assert np.allclose(own, res.margin, atol=1e-7)
+    assert np.allclose(res.margin, 0.001, atol=1e-9)  # (b): every pose holds with cable 3 centred
