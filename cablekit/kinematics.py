@@ -238,7 +238,8 @@ def counts_to_lengths(design, counts, *, home=None) -> np.ndarray:
 # --------------------------------------------------------------------------------------
 # forward kinematics
 # --------------------------------------------------------------------------------------
-# lengths taken as exact: float64 round-off of the lengths, with room for the evaluation [m/m]
+# lengths taken as exact (float64, round-off about 2e-16 x length): the RMS residual allowed,
+# with room for evaluating L(q) and the solver's last step [m/m]
 EXACT_LENGTH_PRECISION = 1e-12
 # condition number of the scaled length Jacobian above which a pose counts as ill-conditioned:
 # the lengths then fix the pose only to about this many times their precision (common practice,
@@ -446,7 +447,8 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
     guess : (n,) or (N, n) starting pose(s); default the home pose.
     tol : relative step size that ends the iteration [-].
     consistency_tol : the lengths' own precision as an RMS residual [m].  Default: the lengths
-        are exact (computed), to float64 round-off: ``1e-12 * max(1 m, longest cable)``.
+        are exact (computed) float64 numbers: ``1e-12 * max(1 m, longest cable)``, a few
+        thousand times their round-off.
         Measured or perturbed lengths of a redundant rig are never exactly consistent: pass
         their expected error.  ``numpy.inf`` accepts any least-squares fit.
     starts : starting poses to compare for rigid platforms: ``None`` (default) the guess and
@@ -485,7 +487,8 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
         basis = f"the given length precision {float(consistency_tol):.3g} m"
     else:
         good = EXACT_LENGTH_PRECISION * scale_len
-        basis = f"lengths taken as exact: float64 round-off, {EXACT_LENGTH_PRECISION:g} x longest cable (>= 1 m)"
+        basis = (f"lengths taken as exact float64 numbers: {EXACT_LENGTH_PRECISION:g} x longest cable (>= 1 m), "
+                 "a few thousand times their round-off")
     if design.platform.kind == "point" and m == 3 and a.ndim == 2:
         p = trilaterate(a, L, gravity_direction=design.frame.gravity_direction)
         res = np.sqrt(np.mean((cable_lengths(design, p, exits=a) - L) ** 2, axis=1))
