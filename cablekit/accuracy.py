@@ -482,8 +482,10 @@ def linear_model(design, poses, *, budget: ErrorBudget | None = None, tensions=N
     N, n = q.shape
     m = design.m
     L = cable_lengths(design, q)
-    J = length_jacobian(design, q)
-    Ja = parameter_jacobians(design, q).exits  # (N, m, 3)
+    # a cable of zero length (attachment at its exit) has no direction: NaN derivatives; such a
+    # pose is infeasible ("no solution / singular", see statics.tensions_at) and its numbers are not shown
+    J = np.nan_to_num(length_jacobian(design, q), nan=0.0)
+    Ja = np.nan_to_num(parameter_jacobians(design, q).exits, nan=0.0)  # (N, m, 3)
     Jp = np.linalg.pinv(J)  # (N, n, m)
     h = home_lengths(design)
     # the counts the controller holds fixed: c(L, h, D) = c_cmd, so an error in the home

@@ -371,3 +371,15 @@ def test_attachment_at_an_exit_is_no_solution_and_the_rest_is_mapped(tmp_path, c
     pts.write_text("x [m],y [m],z [m],roll [deg],pitch [deg],yaw [deg]\n2,1.95,1.9,0,0,0\n0.2,0.15,0.1,0,0,0\n")
     assert main(["points", str(LOFT), str(pts)]) == 0
     assert "row 2: no solution / singular: cable B1 has zero length" in capsys.readouterr().out
+
+
+def test_singular_corners_do_not_break_the_error_model():
+    # the first-order error model once stopped with "SVD did not converge" on the NaN Jacobian
+    # of a zero-length cable; the pose is infeasible (no solution) and the others are computed
+    from cablekit.accuracy import linear_model
+
+    d = load_design(LOFT)
+    q = np.array([[0.2, 0.15, 0.1, 0, 0, 0], [2.0, 1.95, 1.9, 0, 0, 0]])
+    model = linear_model(d, q)
+    assert model.feasible.tolist() == [False, True]
+    assert np.all(np.isfinite(model.sensitivity[1])) and np.all(np.isfinite(model.bias_by_source[1]))
