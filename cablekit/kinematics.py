@@ -264,7 +264,7 @@ class FKResult:
     length Jacobian with rotation columns scaled to metres by the platform radius [-];
     ill_conditioned : (N,) ``condition > CONDITION_LIMIT``; ambiguous : (N,) another start fit
     the lengths to ``tolerance`` at a pose more than 1 um (or 1 urad x radius) away;
-    starts : number of starting poses compared.
+    starts : (N,) number of starting poses compared for each pose.
     """
 
     poses: np.ndarray
@@ -277,13 +277,14 @@ class FKResult:
     condition: np.ndarray
     ill_conditioned: np.ndarray
     ambiguous: np.ndarray
-    starts: int
+    starts: np.ndarray
 
     def summary(self) -> list[str]:
         """Text lines: how many poses converged and what "converged" means here."""
         N = len(self.poses)
+        k0, k1 = (int(np.min(self.starts)), int(np.max(self.starts))) if N else (0, 0)
         lines = [f"forward kinematics: {int(np.sum(self.converged))} of {N} poses converged "
-                 f"({self.starts} start(s) compared per pose)",
+                 f"({k0 if k0 == k1 else f'{k0}-{k1}'} start(s) compared per pose)",
                  f"  converged means: RMS length residual <= {float(np.max(self.tolerance)):.3g} m "
                  f"({self.tolerance_basis}), no other start fits as well at another pose, condition number "
                  f"<= {CONDITION_LIMIT:g}"]
@@ -348,6 +349,11 @@ def trilaterate(exits, lengths, *, gravity_direction=(0.0, 0.0, -1.0)) -> np.nda
 
 _ORIENTATION_SEEDS = [np.array(v) for v in ([0.3, 0, 0], [-0.3, 0, 0], [0, 0.3, 0], [0, -0.3, 0], [0, 0, 0.3],
                                             [0, 0, -0.3], [0.3, 0.3, 0.3], [-0.3, -0.3, -0.3])]
+
+
+# the second round, for poses none of the first starts fits: every combination of 0 and +-0.6 rad
+_WIDE_SEEDS = [np.array(v) for v in np.array(np.meshgrid(*[[-0.6, 0.0, 0.6]] * 3, indexing="ij")).reshape(3, -1).T
+               if np.any(v)]
 
 
 def _rows(geometry, idx):
@@ -452,8 +458,9 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
         Measured or perturbed lengths of a redundant rig are never exactly consistent: pass
         their expected error.  ``numpy.inf`` accepts any least-squares fit.
     starts : starting poses to compare for rigid platforms: ``None`` (default) the guess and
-        8 orientation seeds; 1 the guess alone (a warm start: then "converged" cannot rule out
-        another pose that fits as well).
+        8 orientation seeds, plus 26 wider ones for a pose none of these fits; k the guess and
+        k - 1 seeds; 1 the guess alone (a warm start: then "converged" cannot rule out another
+        pose that fits as well).
 
     Returns
     -------
@@ -496,24 +503,43 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
         ill = ~(cond <= CONDITION_LIMIT)
         return FKResult(poses=p, residual=res, converged=(res <= good) & ~ill, iterations=0, tolerance=good,
                         tolerance_basis=basis + "; closed form, the solution on the side gravity points to",
-                        error_bound=bound, condition=cond, ill_conditioned=ill, ambiguous=np.zeros(N, bool), starts=1)
+                        error_bound=bound, condition=cond, ill_conditioned=ill, ambiguous=np.zeros(N, bool),
+                        starts=np.ones(N, int))
     q0 = np.broadcast_to(np.asarray(design.home_pose if guess is None else guess, float), (N, n)).copy()
-    seeds = [q0]
-    if n == 6:
-        for o in _ORIENTATION_SEEDS[: (len(_ORIENTATION_SEEDS) if starts is None else int(starts) - 1)]:
-            s0 = q0.copy()
+
+    def solve_from(orientations, rows, *, guess_too=True):
+        """LM from the guess of ``rows`` and from the guess's position with each seed orientation."""
+        seeds = [q0[rows]] if guess_too else []
+        for o in orientations:
+            s0 = q0[rows].copy()
             s0[:, 3:] = o
             seeds.append(s0)
-    K = len(seeds)
+        K = len(seeds)
 
-    def tiled(g):
-        return g if g.ndim == 2 else np.tile(g, (K, 1, 1))
+        def tiled(g):
+            g = _rows(g, rows)
+            return g if g.ndim == 2 else np.tile(g, (K, 1, 1))
 
-    qs, rs, st, it = _levenberg_marquardt(design, np.tile(L, (K, 1)), np.vstack(seeds), tiled(a), tiled(b), tol,
-                                          max_iter)
-    if n == 6:
-        qs[:, 3:] = wrap_angles(qs[:, 3:])
-    qs, rs, st = qs.reshape(K, N, n), rs.reshape(K, N), st.reshape(K, N)
+        qk, rk, sk, itk = _levenberg_marquardt(design, np.tile(L[rows], (K, 1)), np.vstack(seeds), tiled(a),
+                                               tiled(b), tol, max_iter)
+        if n == 6:
+            qk[:, 3:] = wrap_angles(qk[:, 3:])
+        return qk.reshape(K, len(rows), n), rk.reshape(K, len(rows)), sk.reshape(K, len(rows)), itk
+
+    rows = np.arange(N)
+    first = _ORIENTATION_SEEDS[: (len(_ORIENTATION_SEEDS) if starts is None else int(starts) - 1)] if n == 6 else []
+    qs, rs, st, it = solve_from(first, rows)
+    used = np.full(N, len(qs))
+    need = np.flatnonzero(~np.any(st & (rs <= good), axis=0)) if (n == 6 and starts is None) else rows[:0]
+    if need.size:  # none of the first starts fits: a second round from wider orientation seeds
+        q2, r2, s2, it2 = solve_from(_WIDE_SEEDS, need, guess_too=False)
+        K2 = len(q2)
+        Q2, R2, S2 = np.full((K2, N, n), np.nan), np.full((K2, N), np.inf), np.zeros((K2, N), bool)
+        Q2[:, need], R2[:, need], S2[:, need] = q2, r2, s2
+        qs, rs, st = np.concatenate([qs, Q2]), np.concatenate([rs, R2]), np.concatenate([st, S2])
+        used[need] += K2
+        it = max(it, it2)
+    K = len(qs)
     best = np.argmin(np.where(np.isfinite(rs), rs, np.inf), axis=0)
     cols = np.arange(N)
     q, residual, stationary = qs[best, cols], rs[best, cols], st[best, cols]
@@ -535,4 +561,4 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
     converged = stationary & (residual <= good) & ~ambiguous & ~ill
     return FKResult(poses=q, residual=residual, converged=converged, iterations=it, tolerance=good,
                     tolerance_basis=basis, error_bound=bound, condition=cond, ill_conditioned=ill,
-                    ambiguous=ambiguous, starts=K)
+                    ambiguous=ambiguous, starts=used)

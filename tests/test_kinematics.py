@@ -133,9 +133,9 @@ def test_converged_fk_poses_are_the_truth_on_a_tilted_box_to_box_rig(loft, tilt)
     # residual of a few um passed the old 1e-6 x longest-cable tolerance.
     q = _tilted(loft, 1000, tilt, seed=3)
     fk = forward_kinematics(loft, cable_lengths(loft, q))
-    assert fk.starts == 9 and "exact" in fk.tolerance_basis
+    assert np.all(fk.starts >= 9) and "exact" in fk.tolerance_basis
     assert "converged means: RMS length residual <=" in "\n".join(fk.summary())
-    assert np.mean(fk.converged) >= 0.99
+    assert np.mean(fk.converged) >= 0.995
     err = np.abs(fk.poses - q)
     assert np.max(err[fk.converged, :3]) < 1e-9  # the requirement: 1e-9 m
     assert np.max(err[fk.converged, 3:]) < 1e-9  # and 1e-9 rad
@@ -148,7 +148,7 @@ def test_a_local_minimum_is_not_converged(loft):
     # residuals of 4.5 um and 0.5 um, 0.47 m / 0.03 m away from the truth (found by search)
     q = _tilted(loft, 3000, 0.35, seed=3)[[515, 2685]]
     one = forward_kinematics(loft, cable_lengths(loft, q), starts=1)
-    assert one.starts == 1
+    assert np.all(one.starts == 1)
     assert np.all(one.residual > 1e-7) and np.all(one.residual < 1e-5)
     assert np.all(np.linalg.norm(one.poses - q, axis=1) > 0.01)
     assert not one.converged.any()
