@@ -541,8 +541,7 @@ def forward_kinematics(design, lengths, *, guess=None, exits=None, attachments=N
         it = max(it, it2)
     K = len(qs)
     best = np.argmin(np.where(np.isfinite(rs), rs, np.inf), axis=0)
-    cols = np.arange(N)
-    q, residual, stationary = qs[best, cols], rs[best, cols], st[best, cols]
+    q, residual, stationary = qs[best, rows], rs[best, rows], st[best, rows]
     # another start that fits as well at a different pose: the lengths do not decide
     fits = st & (rs <= good)
     ambiguous = np.zeros(N, bool)
