@@ -317,6 +317,15 @@ def _alloc(N, m):
 # --------------------------------------------------------------------------------------
 # the same test as a compiled kernel (numba): one pose at a time, no temporaries
 # --------------------------------------------------------------------------------------
+def _member_py(q, c0, c1, c2, a0, a1, a2):  # pragma: no cover - compiled by numba
+    """Cable and dependency coefficient of member ``q`` of a candidate subset kept as scalars."""
+    if q == 0:
+        return c0, a0
+    if q == 1:
+        return c1, a1
+    return c2, a2
+
+
 def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, status):  # pragma: no cover
     """Reduced row echelon form with complete pivoting, then the candidate subsets.
 
@@ -606,15 +615,7 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                     nz = 0
                     best = -1.0
                     for q in range(3):
-                        if q == 0:
-                            l0 = ni0
-                            a0 = na_i
-                        elif q == 1:
-                            l0 = nj0
-                            a0 = na_j
-                        else:
-                            l0 = nk0
-                            a0 = na_k
+                        l0, a0 = _member(q, ni0, nj0, nk0, na_i, na_j, na_k)
                         if abs(a0) <= 1e-9 * n_S:
                             nz += 1
                         else:
@@ -687,15 +688,7 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
             best = -1.0
             lbest = bi0
             for q in range(r + 1):
-                if q == 0:
-                    l0 = bi0
-                    a0 = ba_i
-                elif q == 1:
-                    l0 = bj0
-                    a0 = ba_j
-                else:
-                    l0 = bk0
-                    a0 = ba_k
+                l0, a0 = _member(q, bi0, bj0, bk0, ba_i, ba_j, ba_k)
                 if abs(a0) > 1e-9 * b_S:
                     if a0 * b_sgn < 0:
                         act_lo[p, l0] = True
@@ -760,10 +753,11 @@ def _square3_py(W, w, mid, h, T, box, nom, lim, act_lo, act_hi, status):  # prag
 
 
 if _numba is not None:
+    _member = _numba.njit(cache=True, nogil=True, inline="always")(_member_py)
     _kernel = _numba.njit(cache=True, nogil=True)(_kernel_py)
     _square3 = _numba.njit(cache=True, nogil=True)(_square3_py)
 else:  # pragma: no cover
-    _kernel = _square3 = None
+    _member = _kernel = _square3 = None
 
 
 def _threads() -> int:
