@@ -363,6 +363,9 @@ def test_attachment_at_an_exit_is_no_solution_and_the_rest_is_mapped(tmp_path, c
     # check warns, once per touched exit; a region clear of the exits gets no such warning
     assert len(exit_contact_warnings(d)) == 8
     assert exit_contact_warnings(load_design(SANDER)) == []
+    g = load_design(GREENHOUSE)  # a point platform: a task point on an exit
+    touching = replace(g, task=replace(g.task, points=(tuple(g.exits[1]),)))
+    assert [w.split(":")[0] for w in exit_contact_warnings(touching)] == [f"the task region touches exit {g.cable_names[1]}"]
     assert main(["check", str(LOFT)]) == 0
     assert "the task region touches exit B1" in capsys.readouterr().out
     assert main(["workspace", str(LOFT), "-o", str(tmp_path / "loft.npz"), "--quiet"]) == 0
