@@ -19,10 +19,12 @@ Conventions (see DEVELOPERS.md, "Sign convention"):
 
 from __future__ import annotations
 
+import glob
 import hashlib
 import math
 import os
 import tempfile
+import time
 import tomllib
 from dataclasses import dataclass, field, fields, replace
 from importlib import import_module
@@ -31,6 +33,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from . import limits
 from .units import UnitError, format_quantity, format_vector, parse_quantity, parse_vector
 
 __all__ = [
@@ -491,6 +494,9 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
               "a list of [[frame.exits]] tables, one per cable")
         ok = False
         exits_raw = []
+    elif len(exits_raw) > limits.MAX_CABLES:
+        c.add("frame.exits", f"{len(exits_raw)} cables", f"at most {limits.MAX_CABLES} cables (cablekit.limits)")
+        return None
     seen = set()
     for k, e in enumerate(exits_raw):
         p = f"frame.exits[{k}]"
@@ -505,6 +511,10 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
         seen.add(name)
         pos = c.vector(e, "position", "length", p)
         pd = c.quantity(e, "pulley_diameter", "length", p, required=False, nonnegative=True, default=0.0)
+        if pd and pd < limits.MIN_DRUM_DIAMETER:
+            c.add(f"{p}.pulley_diameter", e.get("pulley_diameter"),
+                  f"0 (an eyelet) or at least {limits.MIN_DRUM_DIAMETER * 1e3:g} mm (cablekit.limits)")
+            pd = None
         dd = c.quantity(e, "drum_distance", "length", p, required=False, nonnegative=True, default=0.0)
         hl = c.quantity(e, "home_length", "length", p, required=False, positive=True, default=None)
         if None in (name, pos, pd, dd) or ("home_length" in e and hl is None):
@@ -515,6 +525,9 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
     obs_raw = t.get("obstacles", [])
     if not isinstance(obs_raw, list):
         c.add("frame.obstacles", obs_raw, "a list of [[frame.obstacles]] tables")
+        obs_raw = []
+    elif len(obs_raw) > limits.MAX_OBSTACLES:
+        c.add("frame.obstacles", f"{len(obs_raw)} obstacles", f"at most {limits.MAX_OBSTACLES} (cablekit.limits)")
         obs_raw = []
     for k, o in enumerate(obs_raw):
         p = f"frame.obstacles[{k}]"
@@ -540,6 +553,10 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
         else:
             gd = tuple(v / n for v in gd)
     g = c.quantity(t, "g", "acceleration", "frame", required=False, positive=True, default=9.80665)
+    if g is not None and not limits.GRAVITY[0] <= g <= limits.GRAVITY[1]:
+        c.add("frame.g", t.get("g"), f"between {limits.GRAVITY[0]:g} and {limits.GRAVITY[1]:g} m/s^2 "
+              "(Earth: 9.81 m/s^2; cablekit.limits)")
+        g = None
     if not ok or gd is None or g is None:
         return Frame(exits=tuple(exits), obstacles=tuple(obstacles)) if exits else None
     return Frame(exits=tuple(exits), obstacles=tuple(obstacles), gravity_direction=gd, g=g)
@@ -615,6 +632,9 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     c.unknown(t, {"diameter", "breaking_force", "axial_stiffness", "modulus", "metallic_area",
                   "mass_per_length", "min_tension", "construction"}, "cable")
     d = c.quantity(t, "diameter", "length", "cable", positive=True)
+    if d is not None and d < limits.MIN_CABLE_DIAMETER:
+        c.add("cable.diameter", t.get("diameter"), f"at least {limits.MIN_CABLE_DIAMETER * 1e3:g} mm (cablekit.limits)")
+        d = None
     mbf = c.quantity(t, "breaking_force", "force", "cable", positive=True)
     if "axial_stiffness" in t:
         for key in ("modulus", "metallic_area"):
@@ -647,11 +667,15 @@ _WINCH_KEYS = {"drum_diameter", "drum_width", "flange_diameter", "grooved", "gea
 def _parse_one_winch(c: _Collector, t: Mapping, p: str) -> Winch | None:
     c.unknown(t, _WINCH_KEYS, p)
     dd = c.quantity(t, "drum_diameter", "length", p, positive=True)
+    if dd is not None and dd < limits.MIN_DRUM_DIAMETER:
+        c.add(f"{p}.drum_diameter", t.get("drum_diameter"),
+              f"at least {limits.MIN_DRUM_DIAMETER * 1e3:g} mm (cablekit.limits)")
+        dd = None
     dw = c.quantity(t, "drum_width", "length", p, positive=True)
     fd = c.quantity(t, "flange_diameter", "length", p, required=False, nonnegative=True, default=0.0)
-    gr = c.number(t, "gear_ratio", p, minimum=0.0, exclusive_min=True)
+    gr = c.number(t, "gear_ratio", p, minimum=0.0, exclusive_min=True, maximum=limits.MAX_GEAR_RATIO)
     eff = c.number(t, "efficiency", p, minimum=0.0, exclusive_min=True, maximum=1.0)
-    lines = c.number(t, "encoder_lines", p, integer=True, minimum=1)
+    lines = c.number(t, "encoder_lines", p, integer=True, minimum=1, maximum=limits.MAX_ENCODER_LINES)
     dec = c.number(t, "decoding", p, integer=True)
     if dec is not None and dec not in (1, 2, 4):
         c.add(f"{p}.decoding", t.get("decoding"), "1, 2 or 4 (x1, x2, x4 quadrature decoding)")
@@ -742,6 +766,10 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
         c.add("task.points", pts_raw, "a list of points such as ['0.5, 0.5, 0.3 m']")
         ok = False
         pts_raw = []
+    elif len(pts_raw) > limits.MAX_TASK_POINTS:
+        c.add("task.points", f"{len(pts_raw):,} points", f"at most {limits.MAX_TASK_POINTS:,} (cablekit.limits); "
+              "check longer lists from a CSV with 'cablekit points'")
+        return None
     for k, pt in enumerate(pts_raw):
         try:
             pts.append(parse_vector(pt, "length", field=f"task.points[{k}]"))
@@ -757,6 +785,9 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
         c.add("task.orientations", ori_raw, "a non-empty list of roll, pitch, yaw such as ['0, 0, 15 deg']")
         ok = False
         ori_raw = []
+    elif len(ori_raw) > limits.MAX_ORIENTATIONS:
+        c.add("task.orientations", f"{len(ori_raw):,} orientations", f"at most {limits.MAX_ORIENTATIONS:,} (cablekit.limits)")
+        return None
     for k, o in enumerate(ori_raw):
         try:
             oris.append(parse_vector(o, "angle", field=f"task.orientations[{k}]"))
@@ -825,8 +856,22 @@ def _parse_practice(c: _Collector, doc: Mapping) -> dict[str, float]:
         else:
             val = c.quantity(t, key, entry.dimension, "practice", positive=True)
         if val is not None:
+            low, high = entry.value / limits.PRACTICE_OVERRIDE_FACTOR, entry.value * limits.PRACTICE_OVERRIDE_FACTOR
+            if key == "rope_design_factor":
+                low = max(low, limits.MIN_DESIGN_FACTOR)
+            if not low <= val <= high:
+                c.add(f"practice.{key}", raw, f"between {low:g} and {high:g}{_si_unit(entry.dimension)} (the common-practice "
+                      f"value {entry.value:g} within a factor {limits.PRACTICE_OVERRIDE_FACTOR:g}; cablekit.limits)")
+                continue
             out[key] = float(val)
     return out
+
+
+def _si_unit(dimension: str) -> str:
+    from .units import DIMENSIONS
+
+    unit = DIMENSIONS[dimension][0]
+    return f" {unit}" if unit else ""
 
 
 # --------------------------------------------------------------------------------------
@@ -841,8 +886,15 @@ def _check_geometry(c: _Collector, d: Design) -> None:
     task = d.task
     # the task region should sit inside the frame's bounding box (exit points)
     lo, hi = exits.min(axis=0), exits.max(axis=0)
+    span = float(np.linalg.norm(hi - lo))
+    if not limits.FRAME_SPAN[0] <= span <= limits.FRAME_SPAN[1]:
+        c.add("frame.exits", f"exit points spanning {span:g} m",
+              f"a frame between {limits.FRAME_SPAN[0]:g} m and {limits.FRAME_SPAN[1]:g} m across (cablekit.limits)")
+        return
+    if not _grid_fits(c, d):
+        return
     tol = 1e-9
-    region = []
+    region = [("home.position", np.array(d.home_pose[:3], float))]
     if task.box_lower is not None:
         region += [("task.box_lower", np.array(task.box_lower)), ("task.box_upper", np.array(task.box_upper))]
     region += [(f"task.points[{k}]", np.array(p)) for k, p in enumerate(task.points)]
@@ -883,6 +935,22 @@ def _check_geometry(c: _Collector, d: Design) -> None:
                   f"rank {n}: these exit points leave the platform uncontrollable in some direction "
                   "(e.g. all exits in one plane with the platform)")
             return
+
+
+def _grid_fits(c: _Collector, d: Design) -> bool:
+    """The task region sampled at ``task.step`` stays within :data:`limits.MAX_GRID_POSES`."""
+    t = d.task
+    positions = float(len(t.points))
+    if t.box_lower is not None:
+        counts = np.floor((np.array(t.box_upper) - np.array(t.box_lower)) / t.step + 1e-9) + 1
+        positions += float(np.prod(counts))
+    poses = positions * (len(t.orientations) if d.dof == 6 else 1)
+    if poses > limits.MAX_GRID_POSES:
+        c.add("task.step", format_quantity(t.step, "length"),
+              f"a step giving at most {limits.MAX_GRID_POSES:,} poses over the task region (this one gives "
+              f"{poses:,.0f}; cablekit.limits.MAX_GRID_POSES): use a coarser step")
+        return False
+    return True
 
 
 def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
@@ -943,26 +1011,51 @@ def revalidate(design: Design) -> Design:
 
 def loads_design(text: str, *, source: str | None = None) -> Design:
     """Parse design-file text. Raises :class:`DesignError` on any problem."""
+    from .limits import MAX_DESIGN_BYTES
+
+    if len(text) > MAX_DESIGN_BYTES:
+        raise DesignError([Problem("<file>", f"{len(text):,} characters",
+                                   f"a design file of at most {MAX_DESIGN_BYTES:,} characters (cablekit.limits)")], source)
+    text = text.removeprefix("\ufeff")  # a UTF-8 byte-order mark some editors write
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise DesignError([Problem("<file>", "TOML syntax", f"valid TOML ({exc})")], source) from None
-    return design_from_dict(doc, source=source)
+    except RecursionError:  # tables or arrays nested thousands deep
+        raise DesignError([Problem("<file>", "nesting too deep", "valid TOML of ordinary depth")], source) from None
+    try:
+        return design_from_dict(doc, source=source)
+    except RecursionError:
+        raise DesignError([Problem("<file>", "nesting too deep", "tables and lists nested a few levels deep")],
+                          source) from None
 
 
 def load_design(path) -> Design:
     """Read and validate a design file. Raises :class:`DesignError` on any problem."""
+    from .limits import MAX_DESIGN_BYTES
+
     path = Path(path)
     try:
+        if path.is_file() and path.stat().st_size > MAX_DESIGN_BYTES:
+            raise DesignError([Problem(str(path), f"{path.stat().st_size:,} bytes",
+                                       f"a design file of at most {MAX_DESIGN_BYTES:,} bytes (cablekit.limits)")],
+                              str(path))
+        if not path.is_file() and path.exists():
+            raise DesignError([Problem(str(path), "not a regular file", "a design file (not a folder or device)")],
+                              str(path))
         raw = path.read_bytes()
     except FileNotFoundError:
         raise DesignError([Problem(str(path), "missing", "an existing design file")], str(path)) from None
     except OSError as exc:
         raise DesignError([Problem(str(path), type(exc).__name__, f"a readable file ({exc.strerror})")], str(path)) from None
+    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise DesignError([Problem(str(path), "UTF-16 text", "a UTF-8 TOML text file: save it again as UTF-8 "
+                                   "(in most editors: 'Save with encoding' -> UTF-8)")], str(path))
     try:
         text = raw.decode("utf-8")
-    except UnicodeDecodeError:
-        raise DesignError([Problem(str(path), "not UTF-8", "a UTF-8 TOML text file")], str(path)) from None
+    except UnicodeDecodeError as exc:
+        raise DesignError([Problem(str(path), f"not UTF-8 (byte {exc.start})", "a UTF-8 TOML text file")],
+                          str(path)) from None
     return loads_design(text, source=str(path))
 
 
@@ -1081,7 +1174,10 @@ def atomic_write_bytes(path, data: bytes) -> Path:
     """
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    remove_stale_temporaries(folder, f".{path.name}.")
+    # the writer's process id is part of the name, so a later save can tell a temporary file
+    # left by a killed writer from one that is still being written
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp", dir=folder)
     try:
         # mkstemp creates the file private (0600); give it the mode a normal open() would
         # (or keep the mode of the file being replaced)
@@ -1104,6 +1200,48 @@ def atomic_write_bytes(path, data: bytes) -> Path:
             pass
         raise
     return path
+
+
+def remove_stale_temporaries(folder, prefix: str) -> int:
+    """Delete ``prefix<pid>.<random>.tmp`` files in ``folder`` whose writing process is gone.
+
+    A save killed between creating its temporary file and the rename leaves it behind; the next
+    save into the same folder removes it.  Files of a process still running are kept.  Returns
+    the number of files removed.
+    """
+    removed = 0
+    try:
+        candidates = list(Path(folder).glob(f"{glob.escape(prefix)}*.tmp"))
+    except OSError:
+        return 0
+    for f in candidates:
+        pid_text = f.name[len(prefix):].split(".", 1)[0]
+        if pid_text.isdigit() and _process_alive(int(pid_text)):
+            continue
+        if not pid_text.isdigit():  # an older name without a process id: only when clearly abandoned
+            try:
+                if f.stat().st_mtime > time.time() - 3600:
+                    continue
+            except OSError:
+                continue
+        try:
+            f.unlink()
+            removed += 1
+        except OSError:
+            pass
+    return removed
+
+
+def _process_alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OverflowError):
+        return pid < 2**22  # another user's process (or an impossible id: not alive)
+    return True
 
 
 def atomic_write_text(path, text: str) -> Path:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..cli import InputError
+from ..cli import InputError, output_path
 from ..design import load_design
 from ..kinematics import cable_lengths, lengths_to_counts
 from ..statics import tensions_at, tension_limits
@@ -65,6 +65,7 @@ def pose_report(design, poses):
 
 
 def run(args) -> int:
+    out = output_path(args.output, "-o/--output", inputs=[args.design, args.points], suffixes=(".csv",))
     d = load_design(args.design)
     poses = read_poses(d, args.points)
     for k, pose in enumerate(poses):
@@ -83,6 +84,6 @@ def run(args) -> int:
                   + [f"tension {n} [N]" for n in names] + ["margin [N]", "feasible", "reason"])
         rows = [list(poses[k]) + list(L[k]) + [int(c) for c in counts[k]] + list(res.tensions[k])
                 + [float(res.margin[k]), "yes" if res.feasible[k] else "no", reasons[k]] for k in range(len(poses))]
-        write_table(args.output, header, rows, comment=f"cablekit points: {d.meta.name}")
-        print(f"wrote {args.output}")
+        write_table(out, header, rows, comment=f"cablekit points: {d.meta.name}")
+        print(f"wrote {out}")
     return 0

@@ -1,0 +1,86 @@
+"""The one table of input bounds: sizes, counts and ranges cablekit refuses beyond.
+
+These are not design rules (those live in :mod:`cablekit.practice`).  They keep every command
+finite: a unit text pint can parse in microseconds, a sampling that fits in memory and time,
+a number far outside any cable robot taken as a slip (wrong unit, missing decimal point) and
+refused with exit code 3 instead of a hang, a ``MemoryError`` or an overflow deep inside a
+computation.  Every error message that applies one of them names the limit.
+
+Unless stated otherwise a bound is **common practice, no source**: chosen one to three orders
+of magnitude beyond the largest rigs and parts the project knows of, so that no real design
+meets it.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "MAX_UNIT_TEXT", "MAX_UNIT_TOKENS", "MAX_UNIT_DEPTH", "MAX_UNIT_EXPONENT", "MAGNITUDE",
+    "MAX_CABLES", "MAX_ARM_JOINTS", "MAX_TASK_POINTS", "MAX_ORIENTATIONS", "MAX_OBSTACLES",
+    "MAX_GRID_POSES", "MAX_TASK_SAMPLES", "MAX_DESIGN_BYTES", "MAX_TABLE_BYTES", "MAX_TABLE_ROWS",
+    "MAX_TABLE_CELL", "FRAME_SPAN", "GRAVITY", "MIN_DRUM_DIAMETER", "MIN_CABLE_DIAMETER",
+    "MIN_DESIGN_FACTOR", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES",
+    "MIN_TOKEN_LENGTH",
+]
+
+# -- unit text (units.py) -----------------------------------------------------------------
+# pint evaluates powers exactly: "m**9**9**9" is 9**(9**9), minutes of big-integer work.  A unit
+# text is therefore checked by our own tokenizer before pint sees it.
+MAX_UNIT_TEXT = 40  # characters of the unit part ("kg*m**2/s**2" has 12)
+MAX_UNIT_TOKENS = 16  # names, numbers, operators and parentheses
+MAX_UNIT_DEPTH = 2  # nested parentheses
+MAX_UNIT_EXPONENT = 4  # |n| in "m**n"; one power per factor, never a chain "m**2**3"
+
+# -- magnitudes per dimension (SI) --------------------------------------------------------
+# (smallest non-zero |value|, largest |value|).  Zero stays allowed where a field allows it.
+MAGNITUDE: dict[str, tuple[float, float]] = {
+    "length": (1e-9, 1e4),  # 1 nm .. 10 km (the largest cable robots span a few hundred metres)
+    "mass": (1e-9, 1e6),  # 1 ug .. 1000 t
+    "force": (1e-9, 1e9),  # .. 1 GN
+    "torque": (1e-9, 1e8),
+    "angle": (1e-12, 1e5),  # .. about 16000 turns (drum turns, joint ranges, orientations)
+    "angular_speed": (1e-9, 1e6),  # .. about 10^7 rpm
+    "speed": (1e-12, 1e3),
+    "acceleration": (1e-12, 1e5),
+    "time": (1e-9, 1e8),
+    "frequency": (1e-6, 1e12),
+    "mass_per_length": (1e-12, 1e4),
+    "stiffness": (1e-9, 1e13),
+    "pressure": (1e-3, 1e13),  # .. 10 TPa (steel has about 0.2 TPa)
+    "area": (1e-15, 1e2),
+    "inertia": (1e-15, 1e9),
+    "power": (1e-9, 1e9),
+    "dimensionless": (0.0, 1e12),
+}
+
+# -- counts (design.py, arm.py, tables.py) --------------------------------------------------
+MAX_CABLES = 64  # rigs use 3 to about 16 cables
+MAX_ARM_JOINTS = 10  # levelling (2) + reach + wrist roll and tilt, with room to spare
+MAX_TASK_POINTS = 10_000  # explicit [task] points (use a CSV and 'cablekit points' for more)
+MAX_ORIENTATIONS = 1_000  # orientation set of a rigid platform
+MAX_OBSTACLES = 1_000
+# poses of one sampling of the task region (box grid x orientations, plus points); the
+# design's task.step must stay within it too, so that 'check' refuses what 'review' cannot do.
+# About 1 GB of per-pose arrays for a rigid rig with 8 cables.
+MAX_GRID_POSES = 2_000_000
+# poses checked by 'cablekit task' over all its targets and moves (--step, --angle-step)
+MAX_TASK_SAMPLES = 200_000
+
+# -- file sizes -------------------------------------------------------------------------------
+MAX_DESIGN_BYTES = 4 * 2**20  # a design file (10^4 task points take about 0.3 MB)
+MAX_TABLE_BYTES = 64 * 2**20  # a CSV file
+MAX_TABLE_ROWS = 200_000  # data rows of a CSV file
+MAX_TABLE_CELL = 1_000  # characters in one CSV cell (labels included)
+
+# -- ranges of single fields (design.py) ------------------------------------------------------
+FRAME_SPAN = (0.01, 1e4)  # [m] diagonal of the exit points' bounding box: 1 cm .. 10 km
+GRAVITY = (0.1, 100.0)  # [m/s**2] frame.g: from small bodies to centrifuge tests (Earth: 9.81)
+MIN_DRUM_DIAMETER = 1e-3  # [m] a winch drum or exit pulley smaller than 1 mm is a unit slip
+MIN_CABLE_DIAMETER = 1e-5  # [m] 10 um: thinner than any rope or fibre line in use
+MIN_DESIGN_FACTOR = 1.0  # a rope design factor below 1 allows working tensions above breaking
+# a [practice] override further than this factor from the table's value is taken as a slip
+PRACTICE_OVERRIDE_FACTOR = 100.0
+MAX_GEAR_RATIO = 1e5
+MAX_ENCODER_LINES = 2**31 - 1  # fits the controllers' 32-bit counters
+
+# -- the dashboard server (commands/serve.py) ------------------------------------------------
+MIN_TOKEN_LENGTH = 16  # characters; secrets.token_urlsafe(24) gives 32
