@@ -393,3 +393,55 @@ def test_a_killed_save_leaves_no_temporary_file_after_the_next_save(tmp_path):
     save_design(d, target)
     assert not left[0].exists() and running.exists()
     assert loads_design(target.read_text()).meta.name == d.meta.name
+
+
+# --------------------------------------------------------------------------------------
+# 8. the generated-code cache
+# --------------------------------------------------------------------------------------
+def _fresh_cache(monkeypatch, folder: Path):
+    from cablekit import codegen
+
+    monkeypatch.setenv("CABLEKIT_CACHE_DIR", str(folder))
+    codegen.clear_cache(disk=False)
+    return codegen
+
+
+def test_a_changed_cached_module_is_not_imported(tmp_path, monkeypatch):
+    import sympy as sp
+
+    codegen = _fresh_cache(monkeypatch, tmp_path / "cache")
+    x = sp.Symbol("x")
+    fn = codegen.generate("robust_probe", [x * 2], [x])
+    assert fn(3.0)[..., 0] == 6.0
+    assert fn.path.with_suffix(".sha256").read_text().strip() == __import__("hashlib").sha256(fn.path.read_bytes()).hexdigest()
+    # someone edits the cached file: it must be regenerated, never run
+    marker = tmp_path / "ran"
+    fn.path.write_text(fn.path.read_text() + f"\nopen({str(marker)!r}, 'w').close()\n")
+    codegen.clear_cache(disk=False)
+    again = codegen.generate("robust_probe", [x * 2], [x])
+    assert not marker.exists() and again(4.0)[..., 0] == 8.0
+    assert "open(" not in again.path.read_text()
+    # a module without its recorded hash is regenerated too
+    again.path.with_suffix(".sha256").unlink()
+    again.path.write_text(again.path.read_text() + f"\nopen({str(marker)!r}, 'w').close()\n")
+    codegen.clear_cache(disk=False)
+    codegen.generate("robust_probe", [x * 2], [x])
+    assert not marker.exists()
+
+
+@pytest.mark.parametrize("mode", [0o777, 0o775, 0o757])
+def test_a_cache_folder_writable_by_others_is_refused(tmp_path, monkeypatch, capsys, mode):
+    import sympy as sp
+
+    folder = tmp_path / "shared-cache"
+    folder.mkdir()
+    folder.chmod(mode)
+    codegen = _fresh_cache(monkeypatch, folder)
+    with pytest.raises(codegen.CacheError, match="writable by others"):
+        codegen.generate("robust_probe", [sp.Symbol("x") + 1], [sp.Symbol("x")])
+    assert not list(folder.iterdir())
+    env = dict(os.environ, CABLEKIT_CACHE_DIR=str(folder))  # a new process: nothing generated yet
+    res = subprocess.run([sys.executable, "-m", "cablekit", "check", str(GREENHOUSE)], capture_output=True,
+                         text=True, env=env, timeout=300)
+    assert res.returncode == 3 and "chmod go-w" in res.stderr and "Traceback" not in res.stderr
+    assert not list(folder.iterdir())
