@@ -445,3 +445,163 @@ def test_a_cache_folder_writable_by_others_is_refused(tmp_path, monkeypatch, cap
                          text=True, env=env, timeout=300)
     assert res.returncode == 3 and "chmod go-w" in res.stderr and "Traceback" not in res.stderr
     assert not list(folder.iterdir())
+
+
+# --------------------------------------------------------------------------------------
+# 7. the dashboard server
+# --------------------------------------------------------------------------------------
+def test_serve_token_rules():
+    from cablekit.cli import InputError
+    from cablekit.commands.serve import choose_token
+
+    made = {choose_token(None, False, "127.0.0.1") for _ in range(3)}
+    assert len(made) == 3 and all(len(t) >= limits.MIN_TOKEN_LENGTH for t in made)  # a new one each start
+    assert choose_token("a" * limits.MIN_TOKEN_LENGTH, False, "0.0.0.0") == "a" * limits.MIN_TOKEN_LENGTH
+    assert choose_token(None, True, "127.0.0.1") == ""  # only when asked for explicitly
+    for token, no_token, ip in [("short", False, "127.0.0.1"), ("a" * 15, False, "0.0.0.0"),
+                                ("spaces are bad in a url", False, "127.0.0.1"), (None, True, "0.0.0.0"),
+                                ("a" * 20, True, "127.0.0.1")]:
+        with pytest.raises(InputError):
+            choose_token(token, no_token, ip)
+
+
+def test_serve_config_checks_host_and_culls_kernels():
+    from cablekit.commands.serve import voila_config
+
+    local = voila_config(ip="127.0.0.1", port=1234, token="t" * 16, cull_idle=600.0)
+    assert local["Voila"]["tornado_settings"] == {"allow_remote_access": False, "local_hostnames": ["localhost"]}
+    assert local["Voila"]["token"] == "t" * 16
+    cull = local["MappingKernelManager"]
+    assert cull["cull_idle_timeout"] == 600 and 0 < cull["cull_interval"] <= 60 and cull["cull_connected"] is False
+
+
+_PROBE_NOTEBOOK = {
+    "cells": [
+        {"cell_type": "code", "metadata": {"tags": ["parameters"]}, "source": "DESIGN = 'x'\nDESIGN_FOLDER = 'x'\n",
+         "outputs": [], "execution_count": None},
+        {"cell_type": "code", "metadata": {}, "source": "print('saving-into:' + str(DESIGN_FOLDER))",
+         "outputs": [], "execution_count": None},
+    ],
+    "metadata": {"kernelspec": {"name": "python3", "display_name": "Python 3", "language": "python"}},
+    "nbformat": 4, "nbformat_minor": 5,
+}
+
+
+def _children(pid: int) -> list[int]:
+    out = []
+    for stat in Path("/proc").glob("[0-9]*/stat"):
+        try:
+            fields = stat.read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue
+        if int(fields[1]) == pid:
+            out.append(int(stat.parent.name))
+    return out
+
+
+def _start_serve(tmp_path, *extra):
+    import json
+    import re
+    import time
+
+    nb = tmp_path / "probe.ipynb"
+    nb.write_text(json.dumps(_PROBE_NOTEBOOK))
+    env = dict(os.environ, CABLEKIT_CACHE_DIR=os.environ.get("CABLEKIT_CACHE_DIR", str(tmp_path / "cache")))
+    proc = subprocess.Popen([sys.executable, "-m", "cablekit", "serve", str(nb), "--port", "0", *extra],
+                            cwd=tmp_path, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True, env=env)
+    lines = []
+    end = time.monotonic() + 120
+    while time.monotonic() < end and proc.poll() is None:
+        line = proc.stdout.readline()
+        lines.append(line)
+        if "saved to" in line:
+            break
+    url = next(re.search(r"http://\S+", line).group(0) for line in lines if "http://" in line)
+    return proc, url, lines
+
+
+def _get(url, host=None, timeout=60):
+    import urllib.error
+    import urllib.request
+
+    class NoRedirect(urllib.request.HTTPRedirectHandler):
+        def redirect_request(self, *args, **kwargs):
+            return None
+
+    request = urllib.request.Request(url, headers={"Host": host} if host else {})
+    try:
+        with urllib.request.build_opener(NoRedirect).open(request, timeout=timeout) as response:
+            return response.status, response.read().decode("utf-8", "replace")
+    except urllib.error.HTTPError as exc:
+        return exc.code, ""
+
+
+def _alive(pid: int) -> bool:
+    """A running process (a zombie waiting to be reaped by its new parent does not count)."""
+    try:
+        return Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0] != "Z"
+    except OSError:
+        return False
+
+
+def _port_open(port: int) -> bool:
+    import socket
+
+    try:
+        socket.create_connection(("127.0.0.1", port), timeout=2).close()
+        return True
+    except OSError:
+        return False
+
+
+@pytest.mark.slow
+def test_served_dashboard_is_locked_down_culls_kernels_and_dies_with_cablekit(tmp_path):
+    import signal
+    import time
+
+    proc, url, lines = _start_serve(tmp_path, "--cull-idle", "4 s")
+    try:
+        base, token = url.split("?token=")
+        port = int(base.rstrip("/").rsplit(":", 1)[1])
+        assert len(token) >= limits.MIN_TOKEN_LENGTH  # a token by default, on loopback too
+        assert any(str(tmp_path) in line for line in lines)
+        assert _get(base)[0] in (302, 403)  # no token, no page
+        assert _get(f"{base}?token={token}", host=f"attacker.example:{port}")[0] == 403  # DNS rebinding
+        for _ in range(3):
+            status, page = _get(f"{base}?token={token}", host=f"localhost:{port}")
+            assert status == 200 and f"saving-into:{tmp_path}" in page  # saves go where serve started
+        voila = _children(proc.pid)
+        assert len(voila) == 1
+        assert _children(voila[0])  # the pages' kernels (no browser ever connected)
+        end = time.monotonic() + 60
+        while _children(voila[0]) and time.monotonic() < end:
+            time.sleep(1)
+        assert not _children(voila[0])  # culled
+        os.kill(proc.pid, signal.SIGKILL)  # cablekit dies without a chance to clean up
+        proc.wait(timeout=10)
+        end = time.monotonic() + 30
+        while (_port_open(port) or _alive(voila[0])) and time.monotonic() < end:
+            time.sleep(0.5)
+        assert not _port_open(port) and not _alive(voila[0])
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+
+
+@pytest.mark.slow
+def test_serve_stops_voila_on_sighup(tmp_path):
+    import signal
+    import time
+
+    proc, url, lines = _start_serve(tmp_path, "--no-token")
+    try:
+        assert "token" not in url
+        port = int(url.split("//")[1].split("/")[0].rsplit(":", 1)[1])
+        voila = _children(proc.pid)
+        proc.send_signal(signal.SIGHUP)  # the terminal was closed
+        assert proc.wait(timeout=60) == 0
+        time.sleep(0.5)
+        assert not _port_open(port) and not any(_alive(v) for v in voila)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
