@@ -944,7 +944,14 @@ def _grid_fits(c: _Collector, d: Design) -> bool:
     if t.box_lower is not None:
         counts = np.floor((np.array(t.box_upper) - np.array(t.box_lower)) / t.step + 1e-9) + 1
         positions += float(np.prod(counts))
-    poses = positions * (len(t.orientations) if d.dof == 6 else 1)
+    k = len(t.orientations) if d.dof == 6 else 1
+    fixed = (len(t.points) + (t.box_lower is not None)) * k
+    if fixed > limits.MAX_FIXED_POSES:
+        c.add("task.points", f"{len(t.points):,} points{f' x {k} orientations' if k > 1 else ''}",
+              f"at most {limits.MAX_FIXED_POSES:,} poses sampled whatever the step (task points plus one box "
+              "position, times the orientations; cablekit.limits.MAX_FIXED_POSES)")
+        return False
+    poses = positions * k
     if poses > limits.MAX_GRID_POSES:
         c.add("task.step", format_quantity(t.step, "length"),
               f"a step giving at most {limits.MAX_GRID_POSES:,} poses over the task region (this one gives "

@@ -16,7 +16,7 @@ from __future__ import annotations
 __all__ = [
     "MAX_UNIT_TEXT", "MAX_UNIT_TOKENS", "MAX_UNIT_DEPTH", "MAX_UNIT_EXPONENT", "MAGNITUDE",
     "MAX_CABLES", "MAX_ARM_JOINTS", "MAX_TASK_POINTS", "MAX_ORIENTATIONS", "MAX_OBSTACLES",
-    "MAX_GRID_POSES", "MAX_TASK_SAMPLES", "MAX_DESIGN_BYTES", "MAX_TABLE_BYTES", "MAX_TABLE_ROWS",
+    "MAX_GRID_POSES", "MAX_FIXED_POSES", "MAX_TASK_SAMPLES", "MAX_BUILDS", "MAX_MC_SAMPLES", "MAX_MC_POSES", "MAX_BUILD_EVALUATIONS", "MAX_DESIGN_BYTES", "MAX_TABLE_BYTES", "MAX_TABLE_ROWS",
     "MAX_TABLE_CELL", "FRAME_SPAN", "GRAVITY", "MIN_DRUM_DIAMETER", "MIN_CABLE_DIAMETER",
     "MIN_DESIGN_FACTOR", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES",
     "MIN_TOKEN_LENGTH",
@@ -55,15 +55,25 @@ MAGNITUDE: dict[str, tuple[float, float]] = {
 # -- counts (design.py, arm.py, tables.py) --------------------------------------------------
 MAX_CABLES = 64  # rigs use 3 to about 16 cables
 MAX_ARM_JOINTS = 10  # levelling (2) + reach + wrist roll and tilt, with room to spare
-MAX_TASK_POINTS = 10_000  # explicit [task] points (use a CSV and 'cablekit points' for more)
+MAX_TASK_POINTS = 2_000  # explicit [task] points (use a CSV and 'cablekit points' for more)
 MAX_ORIENTATIONS = 1_000  # orientation set of a rigid platform
 MAX_OBSTACLES = 1_000
 # poses of one sampling of the task region (box grid x orientations, plus points); the
 # design's task.step must stay within it too, so that 'check' refuses what 'review' cannot do.
-# About 1 GB of per-pose arrays for a rigid rig with 8 cables.
-MAX_GRID_POSES = 2_000_000
+# About 0.4 GB for the structure matrices of a rigid rig with 8 cables.
+MAX_GRID_POSES = 1_000_000
+# poses sampled whatever the grid step: (task points + one box position) x orientations.  The
+# accuracy map (and so the review sheet) thins the box grid to its default of 2,000 poses
+# (accuracy.accuracy_map max_poses) and cannot thin these, so 'check' refuses more.
+MAX_FIXED_POSES = 2_000
 # poses checked by 'cablekit task' over all its targets and moves (--step, --angle-step)
 MAX_TASK_SAMPLES = 200_000
+# 'cablekit accuracy': sampled rigs (--builds) and Monte Carlo samples per pose (--mc-samples),
+# poses the Monte Carlo check visits (--mc-poses), and builds x grid poses in all
+MAX_BUILDS = 100_000
+MAX_MC_SAMPLES = 100_000
+MAX_MC_POSES = 100
+MAX_BUILD_EVALUATIONS = 100_000_000
 
 # -- file sizes -------------------------------------------------------------------------------
 MAX_DESIGN_BYTES = 4 * 2**20  # a design file (10^4 task points take about 0.3 MB)

@@ -348,6 +348,19 @@ def test_check_rejects_micrometre_and_thousand_km_frames(tmp_path, capsys, scale
     _exit3(["check", str(path)], capsys, "frame.exits")
 
 
+@pytest.mark.parametrize("n", [limits.MAX_FIXED_POSES])
+def test_check_rejects_more_fixed_poses_than_the_accuracy_map_can_thin(tmp_path, capsys, n):
+    points = ", ".join(['"1.5, 0.8, 1.0 m"'] * n)  # plus one box position: one too many
+    path = _variant(tmp_path, 'step = "50 mm"', f'step = "50 mm"\npoints = [{points}]')
+    _exit3(["check", str(path)], capsys, "task.points", "MAX_FIXED_POSES")
+    # a rigid platform: (3 points + 1 box position) x 504 orientations = 2016 poses
+    orientations = ", ".join(['"0, 0, 0 deg"'] * 500)
+    path = _variant(tmp_path, 'orientations = [', f'orientations = [{orientations}, ', base=SANDER)
+    points = ", ".join(['"1.3, 1.0, 0.9 m"'] * 3)
+    path.write_text(path.read_text().replace('step = "100 mm"', f'step = "100 mm"\npoints = [{points}]'))
+    _exit3(["check", str(path)], capsys, "MAX_FIXED_POSES", "504 orientations")
+
+
 def test_every_example_stays_within_the_limits():
     for path in sorted(EXAMPLES.glob("*.toml")):
         load_design(path)  # raises DesignError if a limit were too tight for the demos
@@ -605,3 +618,15 @@ def test_serve_stops_voila_on_sighup(tmp_path):
     finally:
         if proc.poll() is None:
             proc.kill()
+
+
+@pytest.mark.parametrize("option, value, fragment", [
+    ("--builds", "1000000000", "--builds"),
+    ("--mc-samples", "1000000000", "--mc-samples"),
+    ("--mc-poses", "100000", "--mc-poses"),
+    ("--max-poses", "100000000", "--max-poses"),
+    ("--max-poses", "900000", "MAX_BUILD_EVALUATIONS"),
+])
+def test_accuracy_sampling_options_are_capped(tmp_path, capsys, option, value, fragment):
+    _exit3(["accuracy", str(GREENHOUSE), option, value, "--quiet", "-o", str(tmp_path / "a.npz")], capsys, fragment)
+    assert not (tmp_path / "a.npz").exists()

@@ -61,6 +61,15 @@ def run(args) -> int:
             raise InputError(f"--{name.replace('_', '-')}: must be at least 1, got {getattr(args, name)}")
     if args.mc_samples < 0:
         raise InputError(f"--mc-samples: must not be negative, got {args.mc_samples}")
+    from .. import limits
+
+    for name, cap in (("max_poses", limits.MAX_GRID_POSES), ("builds", limits.MAX_BUILDS),
+                      ("mc_samples", limits.MAX_MC_SAMPLES), ("mc_poses", limits.MAX_MC_POSES)):
+        if getattr(args, name) > cap:
+            raise InputError(f"--{name.replace('_', '-')}: at most {cap:,} (cablekit.limits), got {getattr(args, name):,}")
+    if args.builds * args.max_poses > limits.MAX_BUILD_EVALUATIONS:
+        raise InputError(f"--builds x --max-poses: at most {limits.MAX_BUILD_EVALUATIONS:,} pose evaluations "
+                         f"(cablekit.limits.MAX_BUILD_EVALUATIONS), got {args.builds * args.max_poses:,}")
     out = output_path(args.output or Path(args.design).stem + ".accuracy.npz", "-o/--output",
                       inputs=[args.design], suffixes=(".npz",))
     html = output_path(args.html, "--html", inputs=[args.design, out], suffixes=(".html", ".htm"))
