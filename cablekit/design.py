@@ -34,7 +34,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from . import limits
-from .units import UnitError, format_quantity, format_vector, parse_quantity, parse_vector
+from .units import DIMENSIONS, UnitError, format_quantity, format_vector, parse_quantity, parse_vector
 
 __all__ = [
     "FORMAT",
@@ -124,6 +124,11 @@ class _Collector:
             return None
         if positive and not value > 0:
             self.add(full, raw, "must be greater than zero")
+            return None
+        low = limits.MAGNITUDE[dimension][0]
+        if (positive or nonnegative) and 0 < value < low:
+            self.add(full, raw, f"{'0 or ' if nonnegative else ''}at least {low:g}{_si_unit(dimension)} "
+                     "(cablekit.limits.MAGNITUDE; a unit slip?)")
             return None
         if nonnegative and value < 0:
             self.add(full, raw, "must not be negative")
@@ -868,8 +873,6 @@ def _parse_practice(c: _Collector, doc: Mapping) -> dict[str, float]:
 
 
 def _si_unit(dimension: str) -> str:
-    from .units import DIMENSIONS
-
     unit = DIMENSIONS[dimension][0]
     return f" {unit}" if unit else ""
 
@@ -937,6 +940,17 @@ def _check_geometry(c: _Collector, d: Design) -> None:
             return
 
 
+def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
+    """Each drum holds at least one wrap of the rope (the drivetrain sizing needs it)."""
+    from .practice import practice_value
+
+    for k, w in enumerate(d.winches[:1] if shared else d.winches):
+        pitch = d.cable.diameter * (practice_value("groove_pitch", d.practice) if w.grooved else 1.0)
+        if w.drum_width < pitch:
+            c.add(f"{'winch' if shared else f'winches[{k}]'}.drum_width", format_quantity(w.drum_width, "length"),
+                  f"room for at least one wrap of the {d.cable.diameter * 1e3:g} mm rope ({pitch * 1e3:g} mm)")
+
+
 def _grid_fits(c: _Collector, d: Design) -> bool:
     """The task region sampled at ``task.step`` stays within :data:`limits.MAX_GRID_POSES`."""
     t = d.task
@@ -993,6 +1007,7 @@ def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     design = Design(meta=meta, frame=frame, platform=platform, cable=cable, winches=winches, payload=payload,
                     task=task, home_pose=tuple(home), practice=practice)
     _check_geometry(c, design)
+    _check_drums(c, design, "winch" in doc)
     if c.problems:
         raise DesignError(c.problems, source)
     # optional sections owned by other modules

@@ -31,7 +31,8 @@ MAX_UNIT_DEPTH = 2  # nested parentheses
 MAX_UNIT_EXPONENT = 4  # |n| in "m**n"; one power per factor, never a chain "m**2**3"
 
 # -- magnitudes per dimension (SI) --------------------------------------------------------
-# (smallest non-zero |value|, largest |value|).  Zero stays allowed where a field allows it.
+# (smallest positive size, largest |value|).  The largest applies to every quantity, the
+# smallest to sizes (positive fields such as a mass or a diameter), not to coordinates.
 MAGNITUDE: dict[str, tuple[float, float]] = {
     "length": (1e-9, 1e4),  # 1 nm .. 10 km (the largest cable robots span a few hundred metres)
     "mass": (1e-9, 1e6),  # 1 ug .. 1000 t

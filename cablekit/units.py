@@ -148,16 +148,18 @@ def parse_quantity(text, dimension: str, *, field: str = "value") -> float:
 
 
 def _in_range(value: float, dimension: str, field: str, text) -> float:
-    """``value`` if its size lies within :data:`cablekit.limits.MAGNITUDE` (zero always does)."""
+    """``value`` if its size is within the largest of :data:`cablekit.limits.MAGNITUDE`.
+
+    (The smallest applies to sizes only, see ``design._Collector.quantity``: a coordinate such
+    as 2e-16 m is float noise around zero, not a slip.)
+    """
     from .limits import MAGNITUDE
 
-    low, high = MAGNITUDE[dimension]
-    size = abs(value)
-    if size > high or 0 < size < low:
+    high = MAGNITUDE[dimension][1]
+    if abs(value) > high:
         si = DIMENSIONS[dimension][0]
-        raise UnitError(f"{field}: {text!r} is outside the accepted range of a {dimension.replace('_', ' ')}: "
-                        f"{'0 or ' if low else ''}{low:g} .. {high:g}{(' ' + si) if si else ''} in size "
-                        "(cablekit.limits.MAGNITUDE; a unit slip?)")
+        raise UnitError(f"{field}: {text!r} is larger than any {dimension.replace('_', ' ')} cablekit accepts "
+                        f"({high:g}{(' ' + si) if si else ''} in size, cablekit.limits.MAGNITUDE; a unit slip?)")
     return value
 
 

@@ -320,6 +320,8 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
     ('drum_diameter = "50 mm"', 'drum_diameter = "0.01 mm"', "winch.drum_diameter"),
     ('pulley_diameter = "50 mm"', 'pulley_diameter = "1 um"', "frame.exits[0].pulley_diameter"),
     ("gear_ratio = 5", "gear_ratio = 1e9", "winch.gear_ratio"),
+    ('drum_width = "40 mm"', 'drum_width = "1 mm"', "winch.drum_width"),  # review gave exit 70
+    ('diameter = "2 mm"', 'diameter = "9 km"', "winch.drum_width"),
     ('[payload]', '[practice]\nrope_design_factor = 1e-9\n\n[payload]', "practice.rope_design_factor"),
     ('[payload]', '[practice]\nrope_design_factor = 0.5\n\n[payload]', "practice.rope_design_factor"),
     ('[payload]', '[practice]\nsag_length_threshold = "1e3 m"\n\n[payload]', "practice.sag_length_threshold"),
