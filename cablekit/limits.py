@@ -88,8 +88,9 @@ GRAVITY = (0.1, 100.0)  # [m/s**2] frame.g: from small bodies to centrifuge test
 MIN_DRUM_DIAMETER = 1e-3  # [m] a winch drum or exit pulley smaller than 1 mm is a unit slip
 MIN_CABLE_DIAMETER = 1e-5  # [m] 10 um: thinner than any rope or fibre line in use
 MIN_DESIGN_FACTOR = 1.0  # a rope design factor below 1 allows working tensions above breaking
-# a [practice] override further than this factor from the table's value is taken as a slip
-PRACTICE_OVERRIDE_FACTOR = 100.0
+# a [practice] override further than this factor from the table's value is taken as a slip (wide
+# enough to loosen a flag threshold out of the way, e.g. a sag threshold of 1 m)
+PRACTICE_OVERRIDE_FACTOR = 1e4
 MAX_GEAR_RATIO = 1e5
 MAX_ENCODER_LINES = 2**31 - 1  # fits the controllers' 32-bit counters
 
