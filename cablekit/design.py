@@ -658,6 +658,11 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     construction = c.text(t, "construction", "cable", default="")
     if mbf is not None and tmin is not None and tmin >= mbf:
         c.add("cable.min_tension", t.get("min_tension"), "must be below the breaking force")
+    if d is not None and mpl is not None and mpl > limits.MAX_ROPE_DENSITY * math.pi * d * d / 4:
+        c.add("cable.mass_per_length", t.get("mass_per_length"),
+              f"at most {limits.MAX_ROPE_DENSITY * math.pi * d * d / 4:.3g} kg/m for a {d * 1e3:g} mm rope (a density "
+              f"of {limits.MAX_ROPE_DENSITY:g} kg/m^3, denser than any rope; cablekit.limits)")
+        mpl = None
     if None in (d, mbf, ea, mpl, tmin, construction):
         return None
     return Cable(diameter=d, breaking_force=mbf, axial_stiffness=ea, mass_per_length=mpl,
@@ -940,6 +945,20 @@ def _check_geometry(c: _Collector, d: Design) -> None:
             return
 
 
+def _check_rope_weight(c: _Collector, d: Design) -> None:
+    """The rope carries its own weight over the longest cable run (breaking length, MBF / (w g))."""
+    points = [np.array(d.home_pose[:3], float), *(np.array(p, float) for p in d.task.points)]
+    if d.task.box_lower is not None:
+        lo, hi = np.array(d.task.box_lower), np.array(d.task.box_upper)
+        points += [np.where([i & 1, i & 2, i & 4], hi, lo) for i in range(8)]
+    longest = max(float(np.max(np.linalg.norm(d.exits - p, axis=1))) for p in points)
+    breaking_length = d.cable.breaking_force / (d.cable.mass_per_length * d.frame.g)
+    if breaking_length < longest:
+        c.add("cable.breaking_force", format_quantity(d.cable.breaking_force, "force"),
+              f"more than the weight of the longest cable run ({longest:g} m of rope weigh "
+              f"{d.cable.mass_per_length * d.frame.g * longest:.3g} N): the rope would break under its own weight")
+
+
 def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
     """Each drum holds at least one wrap of the rope (the drivetrain sizing needs it)."""
     from .practice import practice_value
@@ -1008,6 +1027,7 @@ def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
                     task=task, home_pose=tuple(home), practice=practice)
     _check_geometry(c, design)
     _check_drums(c, design, "winch" in doc)
+    _check_rope_weight(c, design)
     if c.problems:
         raise DesignError(c.problems, source)
     # optional sections owned by other modules

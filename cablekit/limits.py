@@ -18,7 +18,7 @@ __all__ = [
     "MAX_CABLES", "MAX_ARM_JOINTS", "MAX_TASK_POINTS", "MAX_ORIENTATIONS", "MAX_OBSTACLES",
     "MAX_GRID_POSES", "MAX_FIXED_POSES", "MAX_TASK_SAMPLES", "MAX_BUILDS", "MAX_MC_SAMPLES", "MAX_MC_POSES", "MAX_BUILD_EVALUATIONS", "MAX_DESIGN_BYTES", "MAX_TABLE_BYTES", "MAX_TABLE_ROWS",
     "MAX_TABLE_CELL", "FRAME_SPAN", "GRAVITY", "MIN_DRUM_DIAMETER", "MIN_CABLE_DIAMETER",
-    "MIN_DESIGN_FACTOR", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES",
+    "MIN_DESIGN_FACTOR", "MAX_ROPE_DENSITY", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES",
     "MIN_TOKEN_LENGTH",
 ]
 
@@ -87,6 +87,9 @@ FRAME_SPAN = (0.01, 1e4)  # [m] diagonal of the exit points' bounding box: 1 cm 
 GRAVITY = (0.1, 100.0)  # [m/s**2] frame.g: from small bodies to centrifuge tests (Earth: 9.81)
 MIN_DRUM_DIAMETER = 1e-3  # [m] a winch drum or exit pulley smaller than 1 mm is a unit slip
 MIN_CABLE_DIAMETER = 1e-5  # [m] 10 um: thinner than any rope or fibre line in use
+# [kg/m**3] rope mass per length / (pi d**2 / 4): a steel wire rope has about 4000-5000, fibre
+# ropes about 1000; no rope is denser than tungsten (19,300), so more is a unit slip
+MAX_ROPE_DENSITY = 2e4
 MIN_DESIGN_FACTOR = 1.0  # a rope design factor below 1 allows working tensions above breaking
 # a [practice] override further than this factor from the table's value is taken as a slip (wide
 # enough to loosen a flag threshold out of the way, e.g. a sag threshold of 1 m)

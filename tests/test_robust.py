@@ -322,6 +322,7 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
     ("gear_ratio = 5", "gear_ratio = 1e9", "winch.gear_ratio"),
     ('drum_width = "40 mm"', 'drum_width = "1 mm"', "winch.drum_width"),  # review gave exit 70
     ('diameter = "2 mm"', 'diameter = "9 km"', "winch.drum_width"),
+    ('mass_per_length = "0.016 kg/m"', 'mass_per_length = "1e4 kg/m"', "cable.mass_per_length"),  # review: 70
     ('[payload]', '[practice]\nrope_design_factor = 1e-9\n\n[payload]', "practice.rope_design_factor"),
     ('[payload]', '[practice]\nrope_design_factor = 0.5\n\n[payload]', "practice.rope_design_factor"),
     ('[payload]', '[practice]\nsag_length_threshold = "1e3 m"\n\n[payload]', "practice.sag_length_threshold"),
@@ -329,6 +330,17 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
 def test_check_rejects_values_later_commands_cannot_compute(tmp_path, capsys, old, new, field):
     path = _variant(tmp_path, old, new)
     _exit3(["check", str(path)], capsys, field)
+
+
+def test_check_rejects_a_rope_that_breaks_under_its_own_weight(tmp_path, capsys):
+    # 0.06 kg/m weighs 0.59 N per metre; the longest run (exit to a task-box corner) is about 2.8 m
+    path = _variant(tmp_path, 'mass_per_length = "0.016 kg/m"', 'mass_per_length = "0.06 kg/m"')
+    text = path.read_text().replace('breaking_force = "2.4 kN"', 'breaking_force = "1.5 N"')
+    path.write_text(text.replace('min_tension = "3 N"', 'min_tension = "1 N"'))
+    _exit3(["check", str(path)], capsys, "cable.breaking_force", "its own weight")
+    path.write_text(text.replace('breaking_force = "1.5 N"', 'breaking_force = "2 N"').replace('min_tension = "3 N"', 'min_tension = "1 N"'))
+    main(["check", str(path)])
+    assert "its own weight" not in capsys.readouterr().err
 
 
 def test_check_rejects_a_hundred_thousand_task_points(tmp_path, capsys):
