@@ -120,8 +120,6 @@ def output_path(path, option: str, *, inputs=(), suffixes: tuple[str, ...] = (),
                                  f"({exc.strerror or exc})") from None
     if not os.access(folder, os.W_OK | os.X_OK):
         raise InputError(f"{option}: cannot write {shown!r}: no permission to write into folder {str(folder)!r}")
-    if out.exists() and not os.access(out, os.W_OK) and not os.access(folder, os.W_OK):
-        raise InputError(f"{option}: cannot replace {shown!r} (permission denied)")
     return out
 
 

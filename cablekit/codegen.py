@@ -86,17 +86,13 @@ def _verified(path: Path) -> bool:
         return False
 
 
-def _write_module(folder: Path, path: Path, text: str) -> None:
-    """Write the module and then its hash, each atomically."""
-    from .design import remove_stale_temporaries
+def _write_module(path: Path, text: str) -> None:
+    """Write the module and then its hash, each atomically (a killed write leaves no half file)."""
+    from .design import atomic_write_bytes
 
-    remove_stale_temporaries(folder, ".ck_")
     data = text.encode("utf-8")
-    for target, payload in ((path, data), (path.with_suffix(".sha256"), (_digest(data) + "\n").encode())):
-        fd, tmp = tempfile.mkstemp(prefix=f".ck_{os.getpid()}.", suffix=".tmp", dir=folder)
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(payload)
-        os.replace(tmp, target)
+    atomic_write_bytes(path, data)
+    atomic_write_bytes(path.with_suffix(".sha256"), (_digest(data) + "\n").encode())
 
 
 def clear_cache(*, disk: bool = True) -> int:
@@ -232,7 +228,7 @@ def generate(name: str, exprs: Sequence[sp.Expr], args: Sequence[sp.Symbol], *,
     folder = cache_dir()
     path = folder / f"ck_{name}_{key[:20]}.py"
     if not _verified(path):  # missing, changed since it was written, or without its hash
-        _write_module(folder, path, _source(name, exprs, args, output_names, cse, doc or name))
+        _write_module(path, _source(name, exprs, args, output_names, cse, doc or name))
     spec = importlib.util.spec_from_file_location(f"cablekit_generated_{name}_{key[:20]}", path)
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)  # our own generated file, not user text
