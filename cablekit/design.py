@@ -960,14 +960,26 @@ def _check_rope_weight(c: _Collector, d: Design) -> None:
 
 
 def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
-    """Each drum holds at least one wrap of the rope (the drivetrain sizing needs it)."""
+    """Each drum holds at least one wrap of the rope (the drivetrain sizing needs it), and a count
+    and the deadband stay within the accuracy model's small errors (limits.MAX_LENGTH_PER_COUNT,
+    MAX_DEADBAND_LENGTH)."""
+    from .kinematics import length_per_count
     from .practice import practice_value
 
+    lpc = length_per_count(d)
     for k, w in enumerate(d.winches[:1] if shared else d.winches):
+        p = "winch" if shared else f"winches[{k}]"
         pitch = d.cable.diameter * (practice_value("groove_pitch", d.practice) if w.grooved else 1.0)
         if w.drum_width < pitch:
-            c.add(f"{'winch' if shared else f'winches[{k}]'}.drum_width", format_quantity(w.drum_width, "length"),
+            c.add(f"{p}.drum_width", format_quantity(w.drum_width, "length"),
                   f"room for at least one wrap of the {d.cable.diameter * 1e3:g} mm rope ({pitch * 1e3:g} mm)")
+        if lpc[k] > limits.MAX_LENGTH_PER_COUNT:
+            c.add(f"{p}.encoder_lines", f"{lpc[k]:.3g} m of cable per count",
+                  f"at most {limits.MAX_LENGTH_PER_COUNT * 1e3:g} mm of cable per encoder count (drum, gear_ratio, "
+                  "encoder_lines and decoding together; cablekit.limits)")
+        elif w.deadband_counts * lpc[k] > limits.MAX_DEADBAND_LENGTH:
+            c.add(f"{p}.deadband_counts", f"{w.deadband_counts:g} counts = {w.deadband_counts * lpc[k]:.3g} m",
+                  f"a deadband of at most {limits.MAX_DEADBAND_LENGTH * 1e3:g} mm of cable (cablekit.limits)")
 
 
 def _grid_fits(c: _Collector, d: Design) -> bool:

@@ -18,7 +18,7 @@ __all__ = [
     "MAX_CABLES", "MAX_ARM_JOINTS", "MAX_TASK_POINTS", "MAX_ORIENTATIONS", "MAX_OBSTACLES",
     "MAX_GRID_POSES", "MAX_FIXED_POSES", "MAX_TASK_SAMPLES", "MAX_BUILDS", "MAX_MC_SAMPLES", "MAX_MC_POSES", "MAX_BUILD_EVALUATIONS", "MAX_DESIGN_BYTES", "MAX_TABLE_BYTES", "MAX_TABLE_ROWS",
     "MAX_TABLE_CELL", "FRAME_SPAN", "GRAVITY", "MIN_DRUM_DIAMETER", "MIN_CABLE_DIAMETER",
-    "MIN_DESIGN_FACTOR", "MAX_ROPE_DENSITY", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES",
+    "MIN_DESIGN_FACTOR", "MAX_ROPE_DENSITY", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES", "MAX_LENGTH_PER_COUNT", "MAX_DEADBAND_LENGTH",
     "MIN_TOKEN_LENGTH",
 ]
 
@@ -95,6 +95,11 @@ MIN_DESIGN_FACTOR = 1.0  # a rope design factor below 1 allows working tensions 
 # enough to loosen a flag threshold out of the way, e.g. a sag threshold of 1 m)
 PRACTICE_OVERRIDE_FACTOR = 1e4
 MAX_GEAR_RATIO = 1e5
+# [m] cable length per encoder count, and the winch deadband as a length: the accuracy model
+# is a small-error model that takes length errors up to 0.1 m (accuracy.BUDGET_KEYS), so half a
+# count and the deadband must stay within it
+MAX_LENGTH_PER_COUNT = 0.1
+MAX_DEADBAND_LENGTH = 0.1
 MAX_ENCODER_LINES = 2**31 - 1  # fits the controllers' 32-bit counters
 
 # -- the dashboard server (commands/serve.py) ------------------------------------------------

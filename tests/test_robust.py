@@ -224,12 +224,12 @@ def test_unwritable_folder_gives_exit_3_with_the_path(tmp_path, capsys):
 
 def test_a_write_refused_by_the_system_gives_exit_3_with_the_path(tmp_path, capsys, monkeypatch):
     # (as root no folder is unwritable; the refusal is simulated where the file is written)
-    import cablekit.design as design_module
+    import cablekit.tables as tables_module
 
-    def refuse(path, data):
+    def refuse(path, text):
         raise PermissionError(13, "Permission denied", str(path))
 
-    monkeypatch.setattr(design_module, "atomic_write_bytes", refuse)
+    monkeypatch.setattr(tables_module, "atomic_write_text", refuse)  # where the CSV is written
     files = _task_files(tmp_path)
     out = tmp_path / "o.csv"
     _exit3(["points", str(files[0]), str(files[2]), "-o", str(out)], capsys, str(out), "Permission denied")
@@ -323,6 +323,8 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
     ('drum_width = "40 mm"', 'drum_width = "1 mm"', "winch.drum_width"),  # review gave exit 70
     ('diameter = "2 mm"', 'diameter = "9 km"', "winch.drum_width"),
     ('mass_per_length = "0.016 kg/m"', 'mass_per_length = "1e4 kg/m"', "cable.mass_per_length"),  # review: 70
+    ("deadband_counts = 3", "deadband_counts = 1e12", "winch.deadband_counts"),  # review gave exit 70
+    ("gear_ratio = 5", "gear_ratio = 1e-9", "winch.encoder_lines"),  # 150,000 km of cable per count
     ('[payload]', '[practice]\nrope_design_factor = 1e-9\n\n[payload]', "practice.rope_design_factor"),
     ('[payload]', '[practice]\nrope_design_factor = 0.5\n\n[payload]', "practice.rope_design_factor"),
     ('[payload]', '[practice]\nsag_length_threshold = "1e3 m"\n\n[payload]', "practice.sag_length_threshold"),
@@ -330,6 +332,14 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
 def test_check_rejects_values_later_commands_cannot_compute(tmp_path, capsys, old, new, field):
     path = _variant(tmp_path, old, new)
     _exit3(["check", str(path)], capsys, field)
+
+
+@pytest.mark.parametrize("key", ["deadband_counts", "quantisation_counts"])
+def test_error_budget_counts_stay_within_the_small_error_model(tmp_path, capsys, key):
+    # greenhouse with gear_ratio 0.5: 0.82 mm of cable per count, so 1000 counts are 0.82 m
+    path = _variant(tmp_path, 'exit_position = "1 mm"', f'exit_position = "1 mm"\n{key} = 1000')
+    path.write_text(path.read_text().replace("gear_ratio = 5", "gear_ratio = 0.5"))
+    _exit3(["check", str(path)], capsys, f"errors.{key}", "small-error model")
 
 
 def test_check_rejects_a_rope_that_breaks_under_its_own_weight(tmp_path, capsys):
