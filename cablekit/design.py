@@ -658,6 +658,11 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     construction = c.text(t, "construction", "cable", default="")
     if mbf is not None and tmin is not None and tmin >= mbf:
         c.add("cable.min_tension", t.get("min_tension"), "must be below the breaking force")
+    if mbf is not None and ea is not None and mbf > limits.MAX_BREAKING_STRAIN * ea:
+        c.add("cable.axial_stiffness" if "axial_stiffness" in t else "cable.modulus", t.get("axial_stiffness", t.get("modulus")),
+              f"EA of at least {mbf / limits.MAX_BREAKING_STRAIN:.3g} N: the breaking force would stretch the rope by "
+              f"more than {limits.MAX_BREAKING_STRAIN:.0%} (cablekit.limits.MAX_BREAKING_STRAIN)")
+        ea = None
     if d is not None and mpl is not None and mpl > limits.MAX_ROPE_DENSITY * math.pi * d * d / 4:
         c.add("cable.mass_per_length", t.get("mass_per_length"),
               f"at most {limits.MAX_ROPE_DENSITY * math.pi * d * d / 4:.3g} kg/m for a {d * 1e3:g} mm rope (a density "

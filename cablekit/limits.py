@@ -18,7 +18,7 @@ __all__ = [
     "MAX_CABLES", "MAX_ARM_JOINTS", "MAX_TASK_POINTS", "MAX_ORIENTATIONS", "MAX_OBSTACLES",
     "MAX_GRID_POSES", "MAX_FIXED_POSES", "MAX_TASK_SAMPLES", "MAX_BUILDS", "MAX_MC_SAMPLES", "MAX_MC_POSES", "MAX_BUILD_EVALUATIONS", "MAX_DESIGN_BYTES", "MAX_TABLE_BYTES", "MAX_TABLE_ROWS",
     "MAX_TABLE_CELL", "FRAME_SPAN", "GRAVITY", "MIN_DRUM_DIAMETER", "MIN_CABLE_DIAMETER",
-    "MIN_DESIGN_FACTOR", "MAX_ROPE_DENSITY", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES", "MAX_LENGTH_PER_COUNT", "MAX_DEADBAND_LENGTH",
+    "MIN_DESIGN_FACTOR", "MAX_ROPE_DENSITY", "MAX_BREAKING_STRAIN", "PRACTICE_OVERRIDE_FACTOR", "MAX_GEAR_RATIO", "MAX_ENCODER_LINES", "MAX_LENGTH_PER_COUNT", "MAX_DEADBAND_LENGTH",
     "MIN_TOKEN_LENGTH",
 ]
 
@@ -90,6 +90,9 @@ MIN_CABLE_DIAMETER = 1e-5  # [m] 10 um: thinner than any rope or fibre line in u
 # [kg/m**3] rope mass per length / (pi d**2 / 4): a steel wire rope has about 4000-5000, fibre
 # ropes about 1000; no rope is denser than tungsten (19,300), so more is a unit slip
 MAX_ROPE_DENSITY = 2e4
+# breaking force / EA: the rope's elastic strain at break.  Steel wire rope about 0.01-0.02,
+# fibre ropes up to about 0.15-0.2 (from memory); more is a unit slip in EA
+MAX_BREAKING_STRAIN = 0.25
 MIN_DESIGN_FACTOR = 1.0  # a rope design factor below 1 allows working tensions above breaking
 # a [practice] override further than this factor from the table's value is taken as a slip (wide
 # enough to loosen a flag threshold out of the way, e.g. a sag threshold of 1 m)
