@@ -964,6 +964,30 @@ def _check_rope_weight(c: _Collector, d: Design) -> None:
               f"{d.cable.mass_per_length * d.frame.g * longest:.3g} N): the rope would break under its own weight")
 
 
+def _check_holding(c: _Collector, d: Design, shared: bool) -> None:
+    """Some tension is allowed on every cable (t_max > t_min) and the platform hangs at the home
+    pose with every cable pulling: the home lengths, stretch and sag are all referred to it."""
+    from .statics import tension_limits, tensions_at
+
+    lim = tension_limits(d)
+    for i in np.flatnonzero(lim.t_max <= lim.t_min):
+        if lim.limited_by[i] == "rope":
+            c.add("cable.min_tension", format_quantity(d.cable.min_tension, "force"),
+                  f"below the rope's working limit {lim.rope_limit[i]:.3g} N (breaking force / design factor)")
+        else:
+            c.add(f"{'winch' if shared else f'winches[{i}]'}.motor_rated_torque",
+                  format_quantity(d.winches[i].motor_rated_torque, "torque"),
+                  f"a motor that pulls more than cable.min_tension ({d.cable.min_tension:g} N) on its cable: this "
+                  f"one pulls {lim.motor_limit[i]:.3g} N through gears and drum, so no pose can be held")
+        return
+    tensions = tensions_at(d, np.asarray(d.home_pose, float)[None, :]).tensions[0]
+    if not np.all(np.isfinite(tensions) & (tensions > 0)):
+        slack = [d.cable_names[i] for i in np.flatnonzero(~(np.isfinite(tensions) & (tensions > 0)))]
+        c.add("home.position", format_vector(d.home_pose[:3], "length"),
+              f"a pose where the platform hangs with every cable pulling (here {', '.join(slack)} would go slack): "
+              "home lengths, stretch and sag are referred to it")
+
+
 def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
     """Each drum holds at least one wrap of the rope (the drivetrain sizing needs it), and a count
     and the deadband stay within the accuracy model's small errors (limits.MAX_LENGTH_PER_COUNT,
@@ -1045,6 +1069,8 @@ def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     _check_geometry(c, design)
     _check_drums(c, design, "winch" in doc)
     _check_rope_weight(c, design)
+    if not c.problems:
+        _check_holding(c, design, "winch" in doc)
     if c.problems:
         raise DesignError(c.problems, source)
     # optional sections owned by other modules
