@@ -986,6 +986,11 @@ def _check_holding(c: _Collector, d: Design, shared: bool) -> None:
         c.add("home.position", format_vector(d.home_pose[:3], "length"),
               f"a pose where the platform hangs with every cable pulling (here {', '.join(slack)} would go slack): "
               "home lengths, stretch and sag are referred to it")
+    elif np.max(tensions) >= d.cable.breaking_force:
+        i = int(np.argmax(tensions))
+        c.add("home.position", format_vector(d.home_pose[:3], "length"),
+              f"a pose where the platform hangs without breaking a cable (cable {d.cable_names[i]} would carry "
+              f"{tensions[i]:.3g} N, over the breaking force {d.cable.breaking_force:.3g} N)")
 
 
 def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
