@@ -505,6 +505,12 @@ def test_serve_token_rules():
             choose_token(token, no_token, ip)
 
 
+def test_serve_refuses_a_broken_notebook_file(tmp_path, capsys):
+    nb = tmp_path / "broken.ipynb"
+    nb.write_text("{ not json")
+    _exit3(["serve", str(nb), "--port", "0"], capsys, "broken.ipynb", "cannot be read")
+
+
 def test_serve_config_checks_host_and_culls_kernels():
     from cablekit.commands.serve import voila_config
 

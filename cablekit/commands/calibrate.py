@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-
 from ..cli import EXIT_OK, InputError, output_path
 
 NAME = "calibrate"

@@ -2,7 +2,7 @@
 
 Starts Voila on 127.0.0.1 (this machine only) with the notebook's sources hidden, prints the
 address, and stops Voila and its kernels cleanly on Ctrl-C, SIGTERM or SIGHUP; if cablekit
-itself is killed (SIGKILL) the kernel tells Voila to stop too (parent-death signal).
+itself is killed (SIGKILL) the operating system tells Voila to stop too (parent-death signal).
 
 Locked down by default: the browser must present a token (a new random one each start,
 printed in the address; ``--token`` gives one of at least 16 characters, ``--no-token``
@@ -12,10 +12,10 @@ rebinding), and a page's kernel is shut down once it has been idle with no brows
 for ``--cull-idle``.  The token is handed to Voila in a private configuration file, not on
 its command line.
 
-The dashboard is always served from a copy of the notebook whose parameters cell names the
-design file (``--design FILE``, or none: the bundled demo, and ``?design=NAME`` picks another)
-and the folder where the dashboard saves and loads designs: the folder ``cablekit serve`` was
-started from, never the installed package.
+A notebook with a cell tagged ``parameters`` (every bundled one) is served from a copy whose
+parameters cell names the design file (``--design FILE``, or none: the bundled demo, and
+``?design=NAME`` picks another) and the folder where the dashboard saves and loads designs:
+the folder ``cablekit serve`` was started from, never the installed package.
 """
 
 from __future__ import annotations
@@ -142,6 +142,16 @@ def parameterised_copy(notebook: Path, folder: Path, values: dict) -> Path:
     return out
 
 
+def _has_parameters(notebook: Path) -> bool:
+    import nbformat
+
+    try:
+        nb = nbformat.read(notebook, as_version=4)
+    except Exception as exc:  # nbformat raises several kinds for a file that is not a notebook
+        raise InputError(f"notebook {str(notebook)!r} cannot be read ({type(exc).__name__}: {exc})"[:300]) from None
+    return any("parameters" in c.get("metadata", {}).get("tags", []) for c in nb.cells)
+
+
 class _Stop(Exception):
     pass
 
@@ -215,8 +225,10 @@ def run(args) -> int:
             from ..design import load_design
 
             load_design(design)  # a broken file: the validation list now, not a broken dashboard
-        # always a copy: it names the design and the folder saves go to (where we were started)
-        notebook = parameterised_copy(notebook, workdir, {"DESIGN": design, "DESIGN_FOLDER": start_folder})
+        # a copy that names the design and the folder saves go to (where we were started); a
+        # notebook of the user's own without a parameters cell is served as it is
+        if design is not None or _has_parameters(notebook):
+            notebook = parameterised_copy(notebook, workdir, {"DESIGN": design, "DESIGN_FOLDER": start_folder})
         config = voila_config(ip=args.ip, port=port, token=token, cull_idle=cull_idle)
         cfg = workdir / "voila.json"
         fd = os.open(cfg, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
