@@ -180,7 +180,7 @@ def read_table(path_or_text, columns: list[Column], *, source: str | None = None
                 problems.append(f"{src} line {line}, column {name!r}: {cell!r} is not a finite number")
                 continue
             v = v * factors[name] if c.dimension != "dimensionless" else v
-            low, high = MAGNITUDE[c.dimension]
+            high = MAGNITUDE[c.dimension][1]
             if not abs(v) <= high:
                 problems.append(f"{src} line {line}, column {name!r}: {cell!r} is larger than "
                                 f"{high:g}{(' ' + DIMENSIONS[c.dimension][0]) if DIMENSIONS[c.dimension][0] else ''} "
