@@ -5,8 +5,6 @@ from __future__ import annotations
 import numpy as np
 
 from ..design import load_design
-from ..kinematics import home_lengths, length_per_count
-from ..statics import tension_limits
 
 NAME = "check"
 HELP = "validate a design file and print a summary"
@@ -18,6 +16,9 @@ def add_arguments(p) -> None:
 
 def summary_lines(d) -> tuple[list[str], list[str]]:
     """Summary lines and warnings of a valid design (also used by the review sheet)."""
+    from ..kinematics import home_lengths, length_per_count  # (SymPy: imported only when needed)
+    from ..statics import tension_limits
+
     lines, warnings = [], []
     lines.append(f"{d.meta.name}")
     lines.append(f"  platform : {d.platform.kind} ({d.dof} DOF), {d.platform.mass:g} kg; payload "

@@ -6,8 +6,6 @@ import numpy as np
 
 from ..cli import InputError, output_path
 from ..design import load_design
-from ..kinematics import cable_lengths, lengths_to_counts
-from ..statics import tensions_at, tension_limits
 from ..tables import Column, read_table, write_table
 
 NAME = "points"
@@ -42,6 +40,9 @@ def read_poses(design, path) -> np.ndarray:
 
 def pose_report(design, poses):
     """Per pose: lengths (N, m), counts (N, m), TensionResult and a reason text (N,)."""
+    from ..kinematics import cable_lengths, lengths_to_counts  # (SymPy: imported only when needed)
+    from ..statics import tension_limits, tensions_at
+
     L = cable_lengths(design, poses)
     counts = np.rint(lengths_to_counts(design, L)).astype(np.int64)
     res = tensions_at(design, poses)
