@@ -206,8 +206,8 @@ def test_outputs_that_are_not_plain_files_are_refused(tmp_path, capsys, kind):
     assert not (tmp_path / "victim.csv").exists() and not (tmp_path / "no").exists()
 
 
-def test_review_creates_a_missing_output_folder(tmp_path, capsys):
-    # the one command documented to create its output folder: refused paths still refused
+def test_review_refuses_a_pipe_as_its_sheet(tmp_path, capsys):
+    # review creates a missing output folder (documented); special files are refused all the same
     files = _task_files(tmp_path)
     fifo = tmp_path / "pipe.html"
     os.mkfifo(fifo)
