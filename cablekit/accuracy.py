@@ -59,6 +59,7 @@ from typing import Any, Callable, Mapping
 
 import numpy as np
 
+from .limits import MAX_DEADBAND_LENGTH
 from .units import UnitError, parse_quantity, parse_vector
 
 __all__ = [
@@ -232,11 +233,22 @@ def parse_errors_section(raw, add_problem: Callable[[str, Any, str], None], path
             add_problem(full, value, f"at most {shown}: larger errors are outside the small-error model; "
                                      "fix the rig or the design first")
             ok = False
+        elif key in ("deadband_counts", "quantisation_counts") and _count_length(design, v) > MAX_DEADBAND_LENGTH:
+            add_problem(full, value, f"at most {MAX_DEADBAND_LENGTH * 1e3:g} mm of cable ({_count_length(design, v):.3g} m "
+                                     "here): larger errors are outside the small-error model (cablekit.limits)")
+            ok = False
         else:
             values[key] = float(v)
     if not ok:
         return None
     return ErrorBudget(**values, given=frozenset(values))
+
+
+def _count_length(design, counts: float) -> float:
+    """The longest cable length ``counts`` encoder counts stand for on any winch [m]."""
+    from .kinematics import length_per_count
+
+    return float(counts * np.max(length_per_count(design)))
 
 
 def error_budget(design) -> ErrorBudget:
