@@ -852,10 +852,11 @@ def design_checks(design, *, workspace=None) -> list:
         worst_a = float(da[ka]) if np.any(v) else 0.0
         out.append(Check(key="sag_direction", subject=subject, title="sag: change of cable direction at the platform",
                          value=math.degrees(worst_a), limit=math.degrees(at), unit="deg",
-                         margin=math.degrees(at - worst_a), status=WARN if worst_a > at else PASS, source=asrc,
+                         margin=math.degrees(at - worst_a), status=WARN if worst_a > at or not np.any(v) else PASS,
+                         source=asrc,
                          detail=(f"largest at pose {', '.join(f'{x:.3g}' for x in sm.poses[ka][:3])} m; above the "
                                  "threshold the straight-cable tensions and stiffness are approximate there")
-                         if np.any(v) else "no pose with this cable taut"))
+                         if np.any(v) else "not judged: no pose where this cable hangs as a solved catenary"))
     return out
 
 
