@@ -734,10 +734,10 @@ def _drive_part(key, title, mod, design, results, progress) -> Part:
             q.append(Quantity("sag", "largest cable sag (elastic catenary)", big, big, "mm", source=src))
             n_flag = int(np.sum(sg.pose_flagged))
             q.append(Quantity("sag_flagged", "poses where sag changes a cable's length or direction beyond the "
-                              "practice thresholds", n_flag, n_flag, "poses", source=src))
+                              "sag thresholds", n_flag, n_flag, "poses", source=src))
             if n_flag:
                 not_checked.append(f"Sag: at {n_flag} of {len(sg.poses)} poses the sag changes a cable's length or "
-                                   "direction beyond the practice thresholds; the straight-cable results (lengths, "
+                                   "direction beyond the sag thresholds; the straight-cable results (lengths, "
                                    "counts, tensions) are approximate there.")
     else:
         not_checked.append("Cable sag: not checked (cablekit.cables has no sag model installed).")
