@@ -311,17 +311,14 @@ def sizing_tensions(design, poses, *, chunk: int = 512, progress=None) -> Sizing
     """
     from .kinematics import as_poses, structure_matrix
     from .statics import external_wrench
-    from .tension import box_generators
+    from .tension import box_generators, box_vertices
 
     q = as_poses(design, poses)
     n, m = design.dof, design.m
     t_min = np.full(m, float(design.cable.min_tension))
-    D = box_generators(np.asarray(design.task.wrench_box[:n], float), n)
-    if len(D):
-        signs = np.array(np.meshgrid(*[[-1.0, 1.0]] * len(D), indexing="ij")).reshape(len(D), -1).T
-        corners = signs @ D  # (V, n)
-    else:
-        corners = np.zeros((1, n))  # the nominal load only
+    box = np.asarray(design.task.wrench_box[:n], float)
+    boxed = len(box_generators(box, n)) > 0
+    corners = box_vertices(np.zeros(n), box)[0] if boxed else np.zeros((1, n))  # (V, n); nominal load only
     T = np.full((len(q), m), np.nan)
     held = np.zeros(len(q), bool)
     for s in range(0, len(q), chunk):
@@ -335,7 +332,7 @@ def sizing_tensions(design, poses, *, chunk: int = 512, progress=None) -> Sizing
         if progress is not None:
             progress(e, len(q))
     method = ("the minimum-norm tension distribution (every cable at least t_min, no upper limit)"
-              + (f" at the {len(corners)} corners of the task's wrench box" if len(D) else ""))
+              + (f" at the {len(corners)} corners of the task's wrench box" if boxed else ""))
     return SizingTensions(poses=q, tensions=T, held=held, corners=len(corners), method=method)
 
 
@@ -357,7 +354,8 @@ class DriveRow:
 
     name : cable name; pitch_diameter : first layer [m]; length_per_count [m]; deadband : the
     +/- cable length the controller ignores [m]; motion_step : effective motion step of the
-    cable, the dead band's width (at least one count) [m]; cable_speed [m/s]; drum_speed, motor_speed [rad/s]; count_rate, count_rate_limit [Hz];
+    cable, the dead band's width (at least one count) [m]; cable_speed [m/s]; drum_speed,
+    motor_speed [rad/s]; count_rate, count_rate_limit [Hz];
     max_tension : highest tension at the winch end over the usable poses [N] (from
     :func:`sizing_tensions` unless tensions were given);
     max_tension_pose : the pose where it occurs; torque : static motor torque at it [N*m];
@@ -556,6 +554,7 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
     g = design.frame.g
     suspended = g > 0 and design.total_mass > 0
     over_people = design.cable.use_class == "over_people"
+    fb_len = _freeboard_min(design)
     rows, all_checks = [], []
     for i, (e, wn) in enumerate(zip(design.frame.exits, design.winches)):
         subject = f"winch {e.name}"
@@ -572,7 +571,6 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
         travel = float(Ls.max() - Ls.min())
         D1 = pitch_diameter(wn.drum_diameter, d)
         stored = travel + wn.dead_wraps * math.pi * D1
-        fb_len = _freeboard_min(design)
         fill = drum_fill(stored, wn.drum_diameter, wn.drum_width, d, flange_diameter=wn.flange_diameter,
                          grooved=wn.grooved, groove_pitch=practice_value("groove_pitch", pv),
                          freeboard_min=fb_len / d)

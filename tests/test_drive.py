@@ -600,3 +600,13 @@ def test_the_dead_band_error_half_width_follows_its_definition():
         d = _orthogonal_rig(counts, definition)
         hw = _half_widths(d, ErrorBudget())
         np.testing.assert_allclose(hw[_layout(3)["deadband"]], 0.5e-3, rtol=1e-9)
+
+
+def test_no_taut_pose_fails_every_tension_check_instead_of_passing_on_nan(greenhouse):
+    # a minimum tension above what the three cables can share: no pose holds every cable taut, so
+    # the tension-based checks have no number to pass on and must fail (a NaN limit is never a pass)
+    res = size_drives(_changed(greenhouse, "cable", min_tension="200 N"), step=0.3)
+    assert res.poses_used == 0
+    for key in ("rope_design_factor", "motor_torque_rated", "motor_torque_peak", "brake"):
+        got = [c for c in res.checks if c.key == key]
+        assert len(got) == greenhouse.m and all(c.status == FAIL for c in got), key
