@@ -1126,7 +1126,8 @@ def _render_inputs(design) -> str:
                     ("minimum breaking force", _si(c.breaking_force, "kN")),
                     ("axial stiffness EA", _si(c.axial_stiffness, "kN")),
                     ("mass per length", _si(c.mass_per_length, "kg/m")),
-                    ("least taut tension", _si(c.min_tension, "N"))]))
+                    ("least taut tension", _si(c.min_tension, "N")),
+                    ("use class", "load may hang over people" if c.use_class == "over_people" else "general")]))
     out.append("<h3>Winches</h3>")
     shared = all(w == d.winches[0] for w in d.winches)
     winches = [d.winches[0]] if shared else list(d.winches)
@@ -1139,12 +1140,15 @@ def _render_inputs(design) -> str:
               ("gear efficiency", lambda w: _num(w.efficiency)),
               ("encoder lines per motor turn", lambda w: str(w.encoder_lines)),
               ("decoding (counts per line)", lambda w: f"x{w.decoding}"),
-              ("controller deadband", lambda w: f"{_num(w.deadband_counts)} counts"),
+              ("controller deadband", lambda w: (f"+/- {_num(w.deadband_counts)} counts" if w.deadband_definition
+                                                  == "plus_minus" else f"{_num(w.deadband_counts)} counts wide")
+               + f" (motion step {_num(w.step_counts)} counts)"),
               ("count-rate limit", lambda w: _si(w.count_rate_limit, "kHz")),
               ("motor rated torque", lambda w: _si(w.motor_rated_torque, "N*m")),
               ("motor peak torque", lambda w: _si(w.motor_peak_torque, "N*m")),
               ("motor rated speed", lambda w: _si(w.motor_rated_speed, "rpm")),
-              ("holding brake", lambda w: "yes" if w.brake else "<b>no</b>"),
+              ("holding brake", lambda w: f"yes, holds {_si(w.brake_holding_torque, 'N*m')} at the motor shaft"
+               if w.brake else "<b>no</b>" + (" (drive declared self-locking)" if w.self_locking else "")),
               ("dead wraps", lambda w: _num(w.dead_wraps))]
     out.append(_table(heads, [[_h(lab)] + [f(w) for w in winches] for lab, f in labels]))
     t = d.task

@@ -610,3 +610,12 @@ def test_no_taut_pose_fails_every_tension_check_instead_of_passing_on_nan(greenh
     for key in ("rope_design_factor", "motor_torque_rated", "motor_torque_peak", "brake"):
         got = [c for c in res.checks if c.key == key]
         assert len(got) == greenhouse.m and all(c.status == FAIL for c in got), key
+
+
+def test_the_review_inputs_show_the_brake_rating_dead_band_and_use_class(greenhouse):
+    from cablekit.review import _render_inputs
+
+    text = _render_inputs(greenhouse)
+    assert "holds 0.5 N" in text and "+/- 3 counts (motion step 7 counts)" in text and "general" in text
+    people = _render_inputs(_changed(_no_brake(greenhouse, self_locking=True), "cable", use_class="over_people"))
+    assert "self-locking" in people and "over people" in people
