@@ -698,7 +698,12 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
         # holding brake: its rating against the factor times the highest static load torque
         need = (f"{brake_factor:g} x the highest static load torque F r / i = {brake_tau:.3g} N*m at the motor shaft "
                 f"(r = {r_top * 1e3:.1f} mm, gear losses not counted)")
-        if wn.brake:
+        if wn.brake and wn.brake_holding_torque is None:  # only a Winch built in code can lack it
+            add("brake", "holding brake", 0.0, brake_tau, "N*m", upper=False, status=FAIL,
+                source=src("brake_torque_factor"),
+                detail=f"a brake is fitted but its holding torque is not given (brake_holding_torque): it must hold "
+                       f"{need}")
+        elif wn.brake:
             add("brake", "holding brake", wn.brake_holding_torque, brake_tau, "N*m", upper=False,
                 source=src("brake_torque_factor"),
                 detail=f"brake rated {wn.brake_holding_torque:.3g} N*m; it must hold {need}")

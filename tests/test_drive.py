@@ -619,3 +619,12 @@ def test_the_review_inputs_show_the_brake_rating_dead_band_and_use_class(greenho
     assert "holds 0.5 N" in text and "+/- 3 counts (motion step 7 counts)" in text and "general" in text
     people = _render_inputs(_changed(_no_brake(greenhouse, self_locking=True), "cable", use_class="over_people"))
     assert "self-locking" in people and "over people" in people
+
+
+def test_a_brake_without_a_rating_built_in_code_fails(greenhouse):
+    from dataclasses import replace as dc_replace
+
+    unrated = tuple(dc_replace(w, brake_holding_torque=None) for w in greenhouse.winches)
+    res = size_drives(dc_replace(greenhouse, winches=unrated), step=0.3)
+    brakes = [c for c in res.checks if c.key == "brake"]
+    assert len(brakes) == greenhouse.m and all(c.status == FAIL and "not given" in c.detail for c in brakes)
