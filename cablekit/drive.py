@@ -833,6 +833,9 @@ def design_assumptions(design, **options) -> list[str]:
     out.append(f"Rope: construction {design.cable.construction or '(not given)'!r} read as "
                + (f"class {cls}" if cls != "unknown" else f"unknown, so the strictest ({_STRICTEST}) D/d limits apply")
                + f"; use class '{design.cable.use_class}', rope design factor {_design_factor(design)[1]:g}.")
+    out.append("Fleet angle: each exit pulley is taken in line with the middle of its drum (the rope swings half "
+               "the drum width to either side); motor speed and encoder count rate are taken at the task's top "
+               "cable speed on the first rope layer.")
     out.append("Flange freeboard: the flange must stand above the top rope layer by the greater of "
                f"{practice_value('flange_freeboard_min', pv):g} rope diameters and "
                f"{practice_value('flange_freeboard_length_min', pv) * 1e3:g} mm; upper layers are taken 2 rope "
