@@ -4,14 +4,17 @@ For every winch this module works out, from the design and the highest tension i
 sees over the task region:
 
 * cable length per encoder count on the first layer's pitch diameter (drum + one rope
-  diameter) and the deadband in millimetres;
+  diameter), the dead band and the effective motion step (the band's width, ``2k + 1``
+  counts for a +/- k-count band) in millimetres;
 * top cable speed -> drum and motor speed, and the encoder count rate against the
   controller's counting limit;
 * motor torque ``F r / (i eta)`` at the highest tension (static, against the rated torque)
-  and with the task's acceleration (against the peak torque); power; the holding torque a
-  brake must provide;
+  and with the task's acceleration (against the peak torque); power; the brake's rated
+  holding torque against the brake factor times the highest static load torque (no brake on
+  a suspended load fails, unless the drive is declared self-locking: a warning);
 * drum capacity: wraps per layer, layers, turns, stored rope, dead wraps, flange freeboard;
-* fleet angle from the drum width and the distance to the exit pulley; D/d of drum and pulley;
+* fleet angle from the drum width and the distance to the exit pulley; D/d of drum and pulley
+  by rope construction; the rope design factor (higher for a load over people);
 
 and returns one :class:`cablekit.checks.Check` per item with its limit and source.
 
