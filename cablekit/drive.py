@@ -423,7 +423,9 @@ class DriveResult:
 
     rows : one DriveRow per cable; checks : every check, winch by winch; tension_source :
     where the tensions came from; poses_used / poses_total : poses with every cable taut that
-    the highest tensions were taken from (not filtered by the tension limits); design_name.
+    the highest tensions were taken from (not filtered by the tension limits); poses_over_rating :
+    of those, the poses where some cable's sizing tension exceeds its rope or motor limit
+    (:func:`cablekit.statics.tension_limits`); design_name.
     """
 
     design_name: str
@@ -432,6 +434,7 @@ class DriveResult:
     tension_source: str
     poses_used: int
     poses_total: int
+    poses_over_rating: int = 0
 
     @property
     def status(self) -> str:
@@ -443,6 +446,9 @@ class DriveResult:
                  f"  highest tensions from {self.tension_source}",
                  f"  {self.poses_used} of {self.poses_total} task poses can hold every cable taut and were used "
                  "(whether or not the ratings allow the tensions there: that is what the checks judge)"]
+        if self.poses_over_rating:
+            lines.append(f"  at {self.poses_over_rating} of them some cable needs more than its rope or motor limit "
+                         "(the workspace map shows where)")
         head = (f"  {'winch':<8}{'F max':>8}{'torque':>8}{'rated':>7}{'peak':>7}{'motor':>7}{'counts':>8}"
                 f"{'per cnt':>8}{'step':>7}{'fleet':>6}{'D/d':>5}{'layers':>7}  {'status':<6} limiting item")
         unit = (f"  {'':<8}{'[N]':>8}{'[N*m]':>8}{'[%]':>7}{'[%]':>7}{'[rpm]':>7}{'[kHz]':>8}"
@@ -537,6 +543,7 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
     """
     from .cables import exit_side_tension, smallest_rope
     from .kinematics import cable_vectors, home_lengths, length_per_count
+    from .statics import tension_limits
 
     q, t, source = _task_tensions(design, workspace=workspace, tensions=tensions, poses=poses, step=step,
                                   progress=progress)
@@ -736,8 +743,10 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
                              drum_ratio=drum_ratio, pulley_ratio=pulley_ratio, checks=tuple(ck), status=status,
                              limiting=limiting))
         all_checks.extend(ck)
+    over = taut & np.any(t_exit > tension_limits(design).t_max * (1.0 + 1e-9), axis=1)
     return DriveResult(design_name=design.meta.name, rows=tuple(rows), checks=tuple(all_checks),
-                       tension_source=source, poses_used=int(np.sum(taut)), poses_total=len(q))
+                       tension_source=source, poses_used=int(np.sum(taut)), poses_total=len(q),
+                       poses_over_rating=int(np.sum(over)))
 
 
 def _design_factor(design) -> tuple[str, float]:

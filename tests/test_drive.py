@@ -442,6 +442,8 @@ def test_a_rope_and_motor_too_weak_for_a_redundant_rig_fail(camera4):
         rope = next(c for c in b.checks if c.key == "rope_design_factor")
         assert rope.status == FAIL and rope.value == pytest.approx(100 / a.max_tension, rel=1e-12)
     assert weak.poses_used == base.poses_used
+    assert base.poses_over_rating == 0 and 0 < weak.poses_over_rating <= weak.poses_used
+    assert any("more than its rope or motor limit" in line for line in weak.summary())
     slow = size_drives(_changed(camera4, "winch", motor_rated_torque="0.02 N*m"), step=0.3)
     motor = [c for c in slow.checks if c.key == "motor_torque_rated"]
     assert len(motor) == camera4.m and all(c.status == FAIL for c in motor)
