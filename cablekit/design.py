@@ -324,8 +324,11 @@ class Cable:
 
     diameter [m]; breaking_force: minimum breaking force [N]; axial_stiffness: EA [N];
     mass_per_length [kg/m]; min_tension: the least tension that counts as taut [N];
-    construction: free text such as ``"7x19 galvanised"``; max_tension: a tension limit stated
+    construction: free text such as ``"7x19 galvanised"``; its strand pattern (7x19, 7x7,
+    6x7, 6x19, 6x36, 8x19, 19x7) picks the D/d limits; max_tension: a tension limit stated
     for every cable [N] (``None``: only rope and motor limit it).
+    use_class: how the rope is used, ``"general"`` or ``"over_people"`` (a load that may
+    hang over people: a higher rope design factor applies, see ``practice.py``).
     """
 
     diameter: float
@@ -335,6 +338,7 @@ class Cable:
     min_tension: float
     construction: str = ""
     max_tension: float | None = None
+    use_class: str = "general"
 
 
 @dataclass(frozen=True)
@@ -349,6 +353,15 @@ class Winch:
     count_rate_limit: highest count rate the controller can decode [Hz];
     motor_rated_torque, motor_peak_torque [N*m]; motor_rated_speed [rad/s];
     brake: the winch has a holding brake; dead_wraps: turns always left on the drum.
+    brake_holding_torque: the brake's rated static holding torque at the motor shaft [N*m]
+        (required when ``brake``; a brake on the drum: its torque divided by the gear ratio).
+    self_locking: the gear train cannot be driven backwards by the load (e.g. a self-locking
+        worm gear); without a brake such a winch is a warning instead of a failure.
+    deadband_definition: what ``deadband_counts`` means. ``"plus_minus"``: the controller
+        ignores errors up to +/- k counts, so it settles anywhere in a band 2k + 1 counts
+        wide; ``"width"``: ``deadband_counts`` is the band's whole width in counts (a 3-count
+        band is +/- 1 count).  The effective motion step is the band's width (at least one
+        count), see :attr:`step_counts`.
     """
 
     drum_diameter: float
@@ -366,10 +379,28 @@ class Winch:
     flange_diameter: float = 0.0
     grooved: bool = False
     brake: bool = False
+    brake_holding_torque: float | None = None
+    self_locking: bool = False
+    deadband_definition: str = "plus_minus"
 
     @property
     def counts_per_motor_rev(self) -> int:
         return int(self.encoder_lines * self.decoding)
+
+    @property
+    def step_counts(self) -> float:
+        """Effective motion step [counts]: the width of the band the controller settles in.
+
+        ``2k + 1`` for a +/- k dead band, the given width for ``"width"``, never below one
+        count (common practice, no source: the controller can stop on any count of the band,
+        so commands closer than the band's width are not resolved)."""
+        k = float(self.deadband_counts)
+        return 2.0 * k + 1.0 if self.deadband_definition == "plus_minus" else max(k, 1.0)
+
+    @property
+    def deadband_half_counts(self) -> float:
+        """Half-width of the dead band [counts]: the +/- error it leaves (``(width - 1) / 2``)."""
+        return 0.5 * (self.step_counts - 1.0)
 
 
 @dataclass(frozen=True)
@@ -643,12 +674,15 @@ def _parse_platform(c: _Collector, doc: Mapping, m: int | None) -> Platform | No
                     body_half_size=body)
 
 
+USE_CLASSES = ("general", "over_people")  # rope use classes (cable.use_class)
+
+
 def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     t = c.table(doc, "cable", "")
     if t is None:
         return None
     c.unknown(t, {"diameter", "breaking_force", "axial_stiffness", "modulus", "metallic_area",
-                  "mass_per_length", "min_tension", "construction", "max_tension"}, "cable")
+                  "mass_per_length", "min_tension", "construction", "max_tension", "use_class"}, "cable")
     d = c.quantity(t, "diameter", "length", "cable", positive=True)
     if d is not None and d < limits.MIN_CABLE_DIAMETER:
         c.add("cable.diameter", t.get("diameter"), f"at least {limits.MIN_CABLE_DIAMETER * 1e3:g} mm (cablekit.limits)")
@@ -669,6 +703,7 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     mpl = c.quantity(t, "mass_per_length", "mass_per_length", "cable", positive=True)
     tmin = c.quantity(t, "min_tension", "force", "cable", positive=True)
     construction = c.text(t, "construction", "cable", default="")
+    use_class = c.text(t, "use_class", "cable", default="general", choices=USE_CLASSES)
     if mbf is not None and tmin is not None and tmin >= mbf:
         c.add("cable.min_tension", t.get("min_tension"), "must be below the breaking force")
     if mbf is not None and ea is not None and mbf > limits.MAX_BREAKING_STRAIN * ea:
@@ -682,15 +717,17 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
               f"of {limits.MAX_ROPE_DENSITY:g} kg/m^3, denser than any rope; cablekit.limits)")
         mpl = None
     tmax = c.quantity(t, "max_tension", "force", "cable", required=False, positive=True, default=None)
-    if None in (d, mbf, ea, mpl, tmin, construction) or ("max_tension" in t and tmax is None):
+    if None in (d, mbf, ea, mpl, tmin, construction, use_class) or ("max_tension" in t and tmax is None):
         return None
     return Cable(diameter=d, breaking_force=mbf, axial_stiffness=ea, mass_per_length=mpl,
-                 min_tension=tmin, construction=construction, max_tension=tmax)
+                 min_tension=tmin, construction=construction, max_tension=tmax, use_class=use_class)
 
 
 _WINCH_KEYS = {"drum_diameter", "drum_width", "flange_diameter", "grooved", "gear_ratio", "efficiency",
                "encoder_lines", "decoding", "deadband_counts", "count_rate_limit", "motor_rated_torque",
-               "motor_peak_torque", "motor_rated_speed", "brake", "dead_wraps"}
+               "motor_peak_torque", "motor_rated_speed", "brake", "dead_wraps",
+               "brake_holding_torque", "self_locking", "deadband_definition"}
+DEADBAND_DEFINITIONS = ("plus_minus", "width")  # meanings of winch deadband_counts
 
 
 def _parse_one_winch(c: _Collector, t: Mapping, p: str) -> Winch | None:
@@ -717,17 +754,27 @@ def _parse_one_winch(c: _Collector, t: Mapping, p: str) -> Winch | None:
     gro = c.boolean(t, "grooved", p, default=False)
     brk = c.boolean(t, "brake", p, default=False)
     dwr = c.number(t, "dead_wraps", p, minimum=0.0)  # no default: a design choice, asked for explicitly
+    bht = c.quantity(t, "brake_holding_torque", "torque", p, required=False, positive=True)
+    slk = c.boolean(t, "self_locking", p, default=False)
+    dbd = c.text(t, "deadband_definition", p, default="plus_minus", choices=DEADBAND_DEFINITIONS)
+    if brk and "brake_holding_torque" not in t:
+        c.add(f"{p}.brake_holding_torque", "missing", "the brake's rated holding torque at the motor shaft such as "
+                                                      "'0.5 N*m' is required when brake = true")
+    if brk is False and "brake_holding_torque" in t:
+        c.add(f"{p}.brake_holding_torque", t["brake_holding_torque"], "only with brake = true (set brake = true or "
+                                                                      "remove the holding torque)")
     if tr is not None and tp is not None and tp < tr:
         c.add(f"{p}.motor_peak_torque", t.get("motor_peak_torque"), "must not be below the rated torque")
     if dd is not None and fd not in (None, 0.0) and fd <= dd:
         c.add(f"{p}.flange_diameter", t.get("flange_diameter"), "must exceed the drum diameter")
-    vals = (dd, dw, fd, gr, eff, lines, dec, db, crl, tr, tp, sp, gro, brk, dwr)
-    if any(v is None for v in vals):
+    vals = (dd, dw, fd, gr, eff, lines, dec, db, crl, tr, tp, sp, gro, brk, dwr, slk, dbd)
+    if any(v is None for v in vals) or (brk and bht is None):
         return None
     return Winch(drum_diameter=dd, drum_width=dw, flange_diameter=fd, gear_ratio=float(gr), efficiency=float(eff),
                  encoder_lines=int(lines), decoding=int(dec), deadband_counts=float(db), count_rate_limit=crl,
                  motor_rated_torque=tr, motor_peak_torque=tp, motor_rated_speed=sp, grooved=gro, brake=brk,
-                 dead_wraps=float(dwr))
+                 dead_wraps=float(dwr), brake_holding_torque=bht if brk else None, self_locking=slk,
+                 deadband_definition=dbd)
 
 
 def _parse_winches(c: _Collector, doc: Mapping, m: int | None) -> tuple[Winch, ...] | None:
@@ -1233,6 +1280,8 @@ def design_to_dict(d: Design) -> dict:
         cable["construction"] = cb.construction
     if cb.max_tension is not None:
         cable["max_tension"] = _q(cb.max_tension, "force")
+    if cb.use_class != "general":
+        cable["use_class"] = cb.use_class
     doc["cable"] = cable
 
     def winch(w: Winch) -> dict:
@@ -1246,6 +1295,11 @@ def design_to_dict(d: Design) -> dict:
              "grooved": w.grooved, "brake": w.brake, "dead_wraps": w.dead_wraps}
         if w.flange_diameter:
             t["flange_diameter"] = _q(w.flange_diameter, "length")
+        if w.brake_holding_torque is not None:
+            t["brake_holding_torque"] = _q(w.brake_holding_torque, "torque")
+        if w.self_locking:
+            t["self_locking"] = True
+        t["deadband_definition"] = w.deadband_definition
         return t
 
     if all(w == d.winches[0] for w in d.winches):
