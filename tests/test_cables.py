@@ -316,6 +316,7 @@ def test_a_rope_too_heavy_to_hang_taut_fails_the_sag_check(greenhouse):
     # 1 kg/m on a rig held at a few newtons: the weight of a 2-3 m cable exceeds its platform-end tension,
     # so at some poses no catenary pulls the platform with that tension (the cable would hang slack)
     doc = design_to_dict(greenhouse)
+    doc["cable"]["diameter"] = "20 mm"  # a rope thick enough for the density bound of cablekit.limits
     doc["cable"]["mass_per_length"] = "1 kg/m"
     heavy = design_from_dict(doc)
     checks = _sag_checks(heavy, "sag_length")
