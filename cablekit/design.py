@@ -1046,16 +1046,8 @@ def _check_holding(c: _Collector, d: Design, shared: bool) -> None:
     from .statics import tension_limits, tensions_at
 
     lim = tension_limits(d)
-    for i in np.flatnonzero(lim.t_max <= lim.t_min):
-        if lim.limited_by[i] == "rope":
-            c.add("cable.min_tension", format_quantity(d.cable.min_tension, "force"),
-                  f"below the rope's working limit {lim.rope_limit[i]:.3g} N (breaking force / design factor)")
-        else:
-            c.add(f"{'winch' if shared else f'winches[{i}]'}.motor_rated_torque",
-                  format_quantity(d.winches[i].motor_rated_torque, "torque"),
-                  f"a motor that pulls more than cable.min_tension ({d.cable.min_tension:g} N) on its cable: this "
-                  f"one pulls {lim.motor_limit[i]:.3g} N through gears and drum, so no pose can be held")
-        return
+    if np.any(lim.t_max <= lim.t_min):
+        return  # no pose can be held: the workspace and drive checks fail it (a design verdict, not bad input)
     tensions = tensions_at(d, np.asarray(d.home_pose, float)[None, :]).tensions[0]
     if not np.all(np.isfinite(tensions) & (tensions > 0)):
         slack = [d.cable_names[i] for i in np.flatnonzero(~(np.isfinite(tensions) & (tensions > 0)))]

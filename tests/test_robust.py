@@ -325,7 +325,6 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
     ('mass_per_length = "0.016 kg/m"', 'mass_per_length = "1e4 kg/m"', "cable.mass_per_length"),  # review: 70
     ("deadband_counts = 3", "deadband_counts = 1e12", "winch.deadband_counts"),  # review gave exit 70
     ('axial_stiffness = "170 kN"', 'axial_stiffness = "1e-9 N"', "cable.axial_stiffness"),  # review gave 70
-    ('motor_rated_torque = "0.25 N*m"', 'motor_rated_torque = "1e-6 N*m"', "winch.motor_rated_torque"),  # 70
     ('mass = "0.5 kg"', 'mass = "9e5 kg"', "home.position"),  # breaks a cable at home (sag unsolvable: 70 on a rigid rig)
     ("gear_ratio = 5", "gear_ratio = 1e-9", "winch.encoder_lines"),  # 150,000 km of cable per count
     ('[payload]', '[practice]\nrope_design_factor = 1e-9\n\n[payload]', "practice.rope_design_factor"),
@@ -335,6 +334,17 @@ def test_a_target_at_1e300_mm_gives_exit_3(tmp_path, capsys):
 def test_check_rejects_values_later_commands_cannot_compute(tmp_path, capsys, old, new, field):
     path = _variant(tmp_path, old, new)
     _exit3(["check", str(path)], capsys, field)
+
+
+@pytest.mark.slow
+def test_a_motor_too_weak_to_hold_any_pose_is_a_failing_design_not_bad_input(tmp_path, capsys):
+    # review once gave exit 70 here; a motor that cannot pull even the least taut tension is a design
+    # that fails its checks (exit 4 with the sheet), never an input error that hides the sheet
+    path = _variant(tmp_path, 'motor_rated_torque = "0.25 N*m"', 'motor_rated_torque = "1e-6 N*m"')
+    assert main(["check", str(path)]) == 0
+    capsys.readouterr()
+    assert main(["review", str(path), "-o", str(tmp_path / "weak.html")]) == 4
+    assert "FAIL motor torque (static vs rated)" in capsys.readouterr().out
 
 
 @pytest.mark.parametrize("key", ["deadband_counts", "quantisation_counts"])
