@@ -82,9 +82,10 @@ bit  name            meaning
 8    interference    two cable segments closer than the sum of their radii
 16   body            a cable passes through the platform body box
 32   obstacle        a cable passes through a declared obstacle box
-64   no_solution     no tensions balance the load at all (singular pose)
-128  length          length errors push a cable out of its window (m > n)
-256  sweep           cables touch, or a cable hits the body or an obstacle, on a
+64   no_solution     no tensions balance the load at all (singular pose, e.g. an attachment at its exit)
+128  stated          the best tensions need more than a tension limit stated in the design
+256  length          length errors push a cable out of its window (m > n)
+512  sweep           cables touch, or a cable hits the body or an obstacle, on a
                      move to a neighbouring grid node
 ===  ==============  ===========================================================
 
@@ -135,7 +136,7 @@ import numpy as np
 
 from .checks import Check, judge
 from .design import atomic_write_bytes
-from .kinematics import structure_matrix
+from .kinematics import structure_matrix, zero_length_cables
 from .practice import PRACTICE, practice_value
 from .region import task_orientations, task_poses
 from .statics import external_wrench, rotation_matrices, tension_limits
@@ -163,15 +164,16 @@ CHUNK = 8192  # poses per step of the map (progress is reported after each)
 
 # name -> (bit, label); the order is the order of precedence when one reason is shown
 REASONS: dict[str, tuple[int, str]] = {
-    "no_solution": (64, "no tensions balance the load"),
+    "no_solution": (64, "no solution / singular pose"),
     "interference": (8, "cables touch each other"),
     "body": (16, "cable through the platform body"),
     "obstacle": (32, "cable through an obstacle"),
+    "stated": (128, "over the stated tension limit"),
     "motor": (4, "over the motor limit"),
     "rope": (2, "over the rope limit"),
     "slack": (1, "a cable goes slack"),
-    "length": (128, "length (or tension-control) errors push a cable out of its window"),
-    "sweep": (256, "contact on a move between grid nodes"),
+    "length": (256, "length (or tension-control) errors push a cable out of its window"),
+    "sweep": (512, "contact on a move between grid nodes"),
 }
 REASON_BITS = {k: v[0] for k, v in REASONS.items()}
 
@@ -182,6 +184,7 @@ COLOURS = {
     "interference": "#7b4fa0",
     "body": "#8a8f98",
     "obstacle": "#3b5b7a",
+    "stated": "#b0478a",
     "motor": "#e0662b",
     "rope": "#a8232f",
     "slack": "#e8b93b",
@@ -1225,6 +1228,7 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     spread = np.zeros((N, m))
     methods, lp_poses = set(), 0
     motor = np.array([x == "motor" for x in lim.limited_by])
+    stated = np.array([x == "stated" for x in lim.limited_by])
     loaded = bool(wbox is not None or np.any(extra != 0) or a_max > 0)  # else the static map is the same map
     # poses whose acceleration bound stays above this need no polytope: they pass without a warning
     near_level = practice_value("tension_margin_warn", design.practice) * float(np.min(lim.t_max - lim.t_min))
@@ -1236,8 +1240,9 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         q = q_all[s:e]
         W = structure_matrix(design, q)
         w_g = external_wrench(design, q)
-        res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=wbox, backend=backend)
-        stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend) if loaded else res
+        sing = np.any(zero_length_cables(design, q), axis=1)  # attachment at an exit: no solution / singular
+        res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=wbox, backend=backend, singular=sing)
+        stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend, singular=sing) if loaded else res
         methods.add(res.method.split("; ")[1])
         lp_poses += int(res.by_lp.sum()) + (int(stat.by_lp.sum()) if loaded else 0)
         margin = res.margin.copy()
@@ -1268,7 +1273,8 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
                 poly = res.margin[near].copy()
                 lo_n, hi_n, lc_n = act_lo[near], act_hi[near], lcable[near]
                 for acc in accels:
-                    rv = distribute(Wn, wn - Gn @ acc, lim.t_min, lim.t_max, wrench_box=wbox, backend=backend)
+                    rv = distribute(Wn, wn - Gn @ acc, lim.t_min, lim.t_max, wrench_box=wbox, backend=backend,
+                                    singular=sing[near])
                     lp_poses += int(rv.by_lp.sum())
                     worse = rv.margin < poly
                     poly[worse] = rv.margin[worse]
@@ -1283,7 +1289,8 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         rs |= np.where(bad & ~np.isfinite(margin), REASON_BITS["no_solution"], 0).astype(np.uint16)
         tb = bad & np.isfinite(margin)
         rs |= np.where(tb & np.any(act_lo, axis=1), REASON_BITS["slack"], 0).astype(np.uint16)
-        rs |= np.where(tb & np.any(act_hi & ~motor, axis=1), REASON_BITS["rope"], 0).astype(np.uint16)
+        rs |= np.where(tb & np.any(act_hi & ~motor & ~stated, axis=1), REASON_BITS["rope"], 0).astype(np.uint16)
+        rs |= np.where(tb & np.any(act_hi & stated, axis=1), REASON_BITS["stated"], 0).astype(np.uint16)
         rs |= np.where(tb & np.any(act_hi & motor, axis=1), REASON_BITS["motor"], 0).astype(np.uint16)
         # a failing pose must carry a reason even if no active set was reported (never a silent pass)
         rs |= np.where(bad & (rs == 0), REASON_BITS["slack"], 0).astype(np.uint16)
