@@ -1155,7 +1155,12 @@ def _grid_fits(c: _Collector, d: Design) -> bool:
     if t.box_lower is not None:
         counts = np.floor((np.array(t.box_upper) - np.array(t.box_lower)) / t.step + 1e-9) + 1
         positions += float(np.prod(counts))
-    k = len(t.orientations) if d.dof == 6 else 1
+    if d.dof == 6:
+        from .region import task_orientations
+
+        k = len(task_orientations(t))  # the list and the range's grid
+    else:
+        k = 1
     fixed = (len(t.points) + (t.box_lower is not None)) * k
     if fixed > limits.MAX_FIXED_POSES:
         c.add("task.points", f"{len(t.points):,} points{f' x {k} orientations' if k > 1 else ''}",

@@ -390,12 +390,16 @@ def test_check_rejects_more_fixed_poses_than_the_accuracy_map_can_thin(tmp_path,
     points = ", ".join(['"1.5, 0.8, 1.0 m"'] * n)  # plus one box position: one too many
     path = _variant(tmp_path, 'step = "50 mm"', f'step = "50 mm"\npoints = [{points}]')
     _exit3(["check", str(path)], capsys, "task.points", "MAX_FIXED_POSES")
-    # a rigid platform: (3 points + 1 box position) x 504 orientations = 2016 poses
-    orientations = ", ".join(['"0, 0, 0 deg"'] * 500)
+    # a rigid platform: (3 points + 1 box position) x 510 orientations = 2040 poses (500 listed here,
+    # the demo's one listed and the 9 of its roll-pitch range; the sampled set drops repeats, so the
+    # added ones are distinct)
+    orientations = ", ".join(f'"{20 + 0.01 * i:.2f}, 0, 0 deg"' for i in range(500))
     path = _variant(tmp_path, 'orientations = [', f'orientations = [{orientations}, ', base=SANDER)
     points = ", ".join(['"1.3, 1.0, 0.9 m"'] * 3)
-    path.write_text(path.read_text().replace('step = "100 mm"', f'step = "100 mm"\npoints = [{points}]'))
-    _exit3(["check", str(path)], capsys, "MAX_FIXED_POSES", "504 orientations")
+    text = path.read_text()
+    assert 'step = "70 mm"' in text
+    path.write_text(text.replace('step = "70 mm"', f'step = "200 mm"\npoints = [{points}]'))
+    _exit3(["check", str(path)], capsys, "MAX_FIXED_POSES", "510 orientations")
 
 
 def test_every_example_stays_within_the_limits():
