@@ -786,10 +786,12 @@ def sag_thresholds(design) -> tuple[np.ndarray, float, tuple[str, str]]:
 
 
 def _sag_poses(design, workspace=None):
-    """Poses and platform-end tensions to judge sag at: the workspace map's feasible poses and
-    tensions, else the task grid's wrench-feasible poses (:func:`cablekit.statics.tensions_at`)."""
+    """Poses and platform-end tensions to judge sag at: the workspace map's statically feasible poses
+    (gravity within every limit, geometry clear; a pose failing only under accelerations, length
+    errors or on a move still hangs at these tensions) and their tensions, else the task grid's
+    wrench-feasible poses (:func:`cablekit.statics.tensions_at`)."""
     if workspace is not None:
-        ok = np.asarray(workspace.feasible, bool)
+        ok = np.asarray(getattr(workspace, "static_feasible", workspace.feasible), bool)
         return np.asarray(workspace.poses, float)[ok], np.asarray(workspace.tensions, float)[ok]
     from .region import task_poses
     from .statics import tensions_at
