@@ -5,8 +5,6 @@ from __future__ import annotations
 import numpy as np
 
 from ..design import load_design
-from ..kinematics import ZERO_LENGTH, home_lengths, length_per_count, positions_at_exits
-from ..statics import tension_limits
 
 NAME = "check"
 HELP = "validate a design file and print a summary"
@@ -18,6 +16,9 @@ def add_arguments(p) -> None:
 
 def summary_lines(d) -> tuple[list[str], list[str]]:
     """Summary lines and warnings of a valid design (also used by the review sheet)."""
+    from ..kinematics import home_lengths, length_per_count  # (SymPy: imported only when needed)
+    from ..statics import tension_limits
+
     lines, warnings = [], []
     lines.append(f"{d.meta.name}")
     lines.append(f"  platform : {d.platform.kind} ({d.dof} DOF), {d.platform.mass:g} kg; payload "
@@ -67,6 +68,8 @@ def summary_lines(d) -> tuple[list[str], list[str]]:
 def exit_contact_warnings(d) -> list[str]:
     """Warnings where the task region (box or points, any task orientation) reaches a pose that
     puts an attachment exactly at its exit: a zero-length cable, a singular pose."""
+    from ..kinematics import ZERO_LENGTH, positions_at_exits  # (SymPy: imported only when needed)
+
     t = d.task
     orient = t.orientations if d.dof == 6 else ((0.0, 0.0, 0.0),)
     P = positions_at_exits(d, orient)  # (K, m, 3)
