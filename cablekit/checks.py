@@ -86,6 +86,7 @@ CHECK_PROVIDERS: list[str] = [
     "cablekit.drive:design_checks",
     "cablekit.accuracy:design_checks",
     "cablekit.arm:design_checks",
+    "cablekit.suspended:design_checks",
 ]
 
 

@@ -1,0 +1,628 @@
+"""The real pose of a suspended platform whose cables meet it at separate points.
+
+A point platform is modelled with every cable meeting at one point, so nothing can tilt it.
+A real platform hangs from separate attachments ``b_i``: with three cables and six degrees of
+freedom it is **under-constrained** and tilts until the potential energy of everything it
+carries (platform, payload, the arm at its actual pose) is least for the cable lengths the
+winches hold.  This module finds that pose, verifies it by force and moment balance and a
+second-order test, and reports the tilt, the shift and the tool-tip error it causes.
+
+Model
+-----
+* The controller commands the lengths of the **level** platform at its nominal position
+  ``p_c`` with the attachments where the design states them: ``L_i = |a_i - p_c - b_i|``.
+* The platform, payload and arm (joints fixed) are one rigid body of mass ``M`` with centre of
+  mass ``c`` in the platform frame.  The equilibrium pose ``(p, R)`` minimises the height of
+  the centre of mass, ``V = -M g . (p + R c)``, subject to ``|a_i - p - R b_i| <= L_i`` (a
+  cable can go slack, never stretch: inextensible cables).  Solved with SLSQP from several
+  starts; ``R = Exp(w) `` with the rotation vector ``w``.
+* Check of the result, independent of the optimiser: the tensions ``t`` solving
+  ``W t + w_ext = 0`` in the least-squares sense (``W`` columns ``[u_i; R b_i x u_i]``,
+  ``w_ext = [M g; R c x M g]``) must balance the load (small residual) with ``t >= 0``; the
+  Hessian of the Lagrangian reduced to the tangent space of the taut cables must be positive
+  definite (a stable equilibrium, Carricato and Merlet 2013, sec. IV).
+* Arm levelling joints re-level the arm base for the tilt found (repeated until the tilt
+  settles), so their effect on the centre of mass is counted.
+
+SI inside: positions [m], angles [rad], masses [kg], forces [N].
+
+This is a static model: no swing, no cable stretch or sag, rigid bodies.  It does not make a
+rig safe; keep people clear of suspended loads and follow local codes and licensed practice.
+
+References
+----------
+Carricato, M., Merlet, J.-P. "Stability analysis of underconstrained cable-driven parallel
+robots". IEEE Transactions on Robotics 29(1), 2013, pp. 288-296.
+Barfoot, T. D. *State Estimation for Robotics*. Cambridge University Press, 2017, sec. 7.1
+(the left Jacobian of SO(3)).
+Nocedal, J., Wright, S. J. *Numerical Optimization*, 2nd ed. Springer, 2006, thm. 12.6
+(second-order sufficient conditions).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .checks import Check, judge
+
+__all__ = [
+    "COINCIDE_TOL",
+    "SUSPENDED_WARN_SHARE",
+    "BodyEquilibrium",
+    "hanging_equilibrium",
+    "level_lengths",
+    "SuspendedResult",
+    "has_spread_attachments",
+    "suspended_poses",
+    "design_poses",
+    "design_checks",
+    "design_assumptions",
+    "latex_equations",
+]
+
+COINCIDE_TOL = 1e-4  # attachments closer than this [m] are taken to coincide (point model)
+# warn when the tilt's tool-tip error alone uses more than half the required accuracy: the
+# rest of the error budget needs the other half (common practice, no source)
+SUSPENDED_WARN_SHARE = 0.5
+_METHOD = "least potential energy subject to the cable lengths (Carricato and Merlet 2013)"
+
+
+# --------------------------------------------------------------------------------------
+# rotations
+# --------------------------------------------------------------------------------------
+def _skew(v) -> np.ndarray:
+    return np.array([[0.0, -v[2], v[1]], [v[2], 0.0, -v[0]], [-v[1], v[0], 0.0]])
+
+
+def _exp(w) -> np.ndarray:
+    """Rotation matrix of the rotation vector ``w`` [rad] (Rodrigues)."""
+    th = float(np.linalg.norm(w))
+    K = _skew(w)
+    if th < 1e-8:
+        return np.eye(3) + K + 0.5 * K @ K
+    return np.eye(3) + math.sin(th) / th * K + (1.0 - math.cos(th)) / th**2 * K @ K
+
+
+def _left_jacobian(w) -> np.ndarray:
+    """``Exp(w + dw) = Exp(J_l(w) dw) Exp(w)`` to first order (Barfoot 2017, sec. 7.1)."""
+    th = float(np.linalg.norm(w))
+    K = _skew(w)
+    if th < 1e-6:
+        return np.eye(3) + 0.5 * K + K @ K / 6.0
+    return np.eye(3) + (1.0 - math.cos(th)) / th**2 * K + (th - math.sin(th)) / th**3 * K @ K
+
+
+# --------------------------------------------------------------------------------------
+# one rigid body hanging on cables: the core, on plain arrays
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class BodyEquilibrium:
+    """The equilibrium of one hanging body.
+
+    position : (3,) reference point [m]; rotation : (3, 3) platform to world; tensions : (m,)
+    [N] from force and moment balance; residual : unbalanced wrench / weight [-] (force part in
+    N per N, moment part in N*m per N, i.e. m); stable : the reduced Hessian is positive
+    definite; min_curvature : its least eigenvalue [m] (per unit weight); slack : (m,) cables
+    shorter than their commanded length (not pulling); height : centre-of-mass height along
+    up [m]; starts : optimiser starts run; agree : starts that reached the same least height.
+    """
+
+    position: np.ndarray
+    rotation: np.ndarray
+    tensions: np.ndarray
+    residual: float
+    stable: bool
+    min_curvature: float
+    slack: np.ndarray
+    height: float
+    starts: int
+    agree: int
+
+
+def level_lengths(exits, attachments, positions) -> np.ndarray:
+    """Cable lengths (N, m) [m] holding the platform level at ``positions`` (N, 3) [m]:
+    ``L_i = |a_i - p - b_i|`` with exits ``a`` (m, 3) and attachments ``b`` (m, 3) [m]."""
+    p = np.atleast_2d(np.asarray(positions, float))
+    a, b = np.asarray(exits, float), np.asarray(attachments, float)
+    return np.linalg.norm(a[None] - p[:, None, :] - b[None], axis=2)
+
+
+def _starts(p0, lengths, count: int, rng) -> list[np.ndarray]:
+    """Start points (p, w): the level nominal pose, then tilted and shifted ones."""
+    out = [np.concatenate([p0, np.zeros(3)])]
+    scale = 0.05 * float(np.min(lengths))
+    tilts = [np.array([0.35, 0, 0]), np.array([-0.35, 0, 0]), np.array([0, 0.35, 0]), np.array([0, -0.35, 0])]
+    for k in range(1, count):
+        w = tilts[(k - 1) % 4] if k <= 4 else rng.normal(0.0, 0.4, 3)
+        out.append(np.concatenate([p0 + rng.normal(0.0, scale, 3) * (k > 4), w]))
+    return out
+
+
+def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_mass, gravity, guess,
+                        starts: int = 5, seed: int = 0) -> BodyEquilibrium:
+    """The stable equilibrium of a rigid body hanging on cables of fixed greatest lengths.
+
+    Parameters
+    ----------
+    exits : (m, 3) cable exit points ``a_i`` in the world [m].
+    attachments : (m, 3) attachments ``b_i`` in the body frame [m].
+    lengths : (m,) cable lengths ``L_i`` [m] (a cable may be slack, never longer).
+    mass : total mass [kg]; center_of_mass : (3,) in the body frame [m].
+    gravity : (3,) gravity acceleration [m/s**2].
+    guess : (3,) reference-point position to start from, the body level [m].
+    starts : optimiser starts (the first is the level guess); the lowest result is kept.
+
+    Returns
+    -------
+    BodyEquilibrium
+
+    Notes
+    -----
+    Minimises ``V = M |g| e_up . (p + R c)`` subject to ``L_i - |a_i - p - R b_i| >= 0`` with
+    ``R = Exp(w)`` (Carricato and Merlet 2013, eq. of the potential-energy formulation), with
+    analytic gradients through the left Jacobian of SO(3).  At the optimum the Lagrange
+    multipliers are the tensions; they are recomputed here from ``W t + w_ext = 0``.
+    """
+    from scipy.optimize import minimize
+
+    a = np.asarray(exits, float)
+    b = np.asarray(attachments, float)
+    L = np.asarray(lengths, float)
+    c = np.asarray(center_of_mass, float)
+    g = np.asarray(gravity, float)
+    gn = float(np.linalg.norm(g))
+    if not (mass > 0 and gn > 0 and np.all(np.isfinite(L)) and np.all(L > 0)):
+        raise ValueError("mass, gravity and cable lengths must be positive and finite")
+    up = -g / gn
+
+    def split(x):
+        return x[:3], _exp(x[3:])
+
+    def energy(x):  # centre-of-mass height [m]; times M|g| it is the potential energy
+        p, R = split(x)
+        return float(up @ (p + R @ c))
+
+    def energy_grad(x):
+        p, R = split(x)
+        return np.concatenate([up, _left_jacobian(x[3:]).T @ np.cross(R @ c, up)])
+
+    def cons(x):
+        p, R = split(x)
+        return L - np.linalg.norm(a - p - b @ R.T, axis=1)
+
+    def cons_jac(x):
+        p, R = split(x)
+        r = b @ R.T
+        l = a - p - r
+        u = l / np.linalg.norm(l, axis=1, keepdims=True)
+        return np.hstack([u, np.cross(r, u) @ _left_jacobian(x[3:])])
+
+    rng = np.random.default_rng(seed)
+    found = []
+    for x0 in _starts(np.asarray(guess, float), L, max(1, int(starts)), rng):
+        res = minimize(energy, x0, jac=energy_grad, method="SLSQP",
+                       constraints=[{"type": "ineq", "fun": cons, "jac": cons_jac}],
+                       options={"ftol": 1e-14, "maxiter": 500})
+        if np.all(np.isfinite(res.x)) and np.min(cons(res.x)) > -1e-7:
+            found.append((float(res.fun), res.x))
+    if not found:
+        raise ValueError("no equilibrium found: the cable lengths cannot hold the body (check the geometry)")
+    found.sort(key=lambda f: f[0])
+    best_h, x = found[0]
+    agree = sum(abs(h - best_h) < 1e-7 for h, _ in found)
+    p, R = split(x)
+    # force and moment balance, independent of the optimiser's multipliers
+    r = b @ R.T
+    l = a - p - r
+    u = l / np.linalg.norm(l, axis=1, keepdims=True)
+    W = np.vstack([u.T, np.cross(r, u).T])  # (6, m)
+    weight = mass * g
+    w_ext = np.concatenate([weight, np.cross(R @ c, weight)])
+    slack = cons(x) > 1e-7 * float(np.max(L))
+    t = np.zeros(len(L))
+    taut = ~slack
+    if taut.any():
+        t[taut] = np.linalg.lstsq(W[:, taut], -w_ext, rcond=None)[0]
+    residual = float(np.linalg.norm(W @ t + w_ext) / (mass * gn))
+    curvature = _reduced_curvature(a, b, L, c, up, p, R, t / (mass * gn), taut)
+    return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual,
+                           stable=bool(curvature > 1e-9), min_curvature=curvature, slack=slack,
+                           height=best_h, starts=len(found), agree=int(agree))
+
+
+def _reduced_curvature(a, b, L, c, up, p, R, lam, taut, h: float = 1e-4) -> float:
+    """Least eigenvalue of the Lagrangian's Hessian on the taut cables' tangent space [m].
+
+    Local coordinates ``(dp, dw)`` with ``R' = Exp(dw) R``; Hessian by central differences of
+    ``Lag = e_up . (p + R c) - sum lam_i (L_i - |a_i - p - R b_i|)``; the tangent space is the
+    null space of the taut cables' length gradients (Nocedal and Wright 2006, thm. 12.6).
+    """
+    def lag(x):
+        Rx = _exp(x[3:]) @ R
+        px = p + x[:3]
+        return float(up @ (px + Rx @ c) - lam @ (L - np.linalg.norm(a - px - b @ Rx.T, axis=1)))
+
+    n = 6
+    H = np.zeros((n, n))
+    E = np.eye(n) * h
+    for i in range(n):
+        for j in range(i, n):
+            H[i, j] = H[j, i] = (lag(E[i] + E[j]) - lag(E[i] - E[j]) - lag(-E[i] + E[j]) + lag(-E[i] - E[j])) / (4 * h * h)
+    r = b @ R.T
+    l = a - p - r
+    u = l / np.linalg.norm(l, axis=1, keepdims=True)
+    G = np.hstack([u, np.cross(r, u)])[taut]  # gradients of the taut cables' constraints
+    if len(G):
+        _, s, Vt = np.linalg.svd(G)
+        rank = int(np.sum(s > 1e-9 * s[0]))
+        Z = Vt[rank:].T
+    else:
+        Z = np.eye(n)
+    if Z.shape[1] == 0:
+        return math.inf  # fully constrained: no motion left
+    return float(np.min(np.linalg.eigvalsh(Z.T @ H @ Z)))
+
+
+# --------------------------------------------------------------------------------------
+# a design: platform + payload + arm
+# --------------------------------------------------------------------------------------
+def has_spread_attachments(design) -> bool:
+    """A point platform whose stated attachments do not all coincide."""
+    b = np.asarray(getattr(design.platform, "built_attachments", ()), float)
+    if design.platform.kind != "point" or b.size == 0:
+        return False
+    return bool(np.max(np.linalg.norm(b - b.mean(axis=0), axis=1)) > COINCIDE_TOL)
+
+
+def _arm_frame(design, arm, joints, holding):
+    """Masses (k,) [kg] and centres (k, 3) in the platform frame [m] of the arm's parts."""
+    from .arm import arm_points, mass_list, mount_rotation
+
+    m, c = mass_list(arm, arm_points(arm, np.asarray(joints, float)[None]), holding=holding)
+    return m[0], np.asarray(arm.mount) + c[0] @ mount_rotation(arm).T
+
+
+def _body(design, joints, holding) -> tuple[float, np.ndarray]:
+    """Total mass [kg] and centre of mass in the platform frame [m] with the arm at ``joints``."""
+    pl, pay = design.platform, design.payload
+    parts = [(np.array([pl.mass]), np.array([pl.center_of_mass], float))]
+    arm = design.sections.get("arm")
+    if arm is None or arm.payload_source != "design":
+        parts.append((np.array([pay.mass]), np.array([pay.center_of_mass], float)))
+    if arm is not None:
+        parts.append(_arm_frame(design, arm, joints, holding))
+    m = np.concatenate([p[0] for p in parts])
+    r = np.concatenate([p[1] for p in parts])
+    M = float(m.sum())
+    return M, (m[:, None] * r).sum(axis=0) / M
+
+
+def _tip(design, arm, position, R, joints):
+    from .arm import forward_kinematics, mount_rotation
+
+    fk = forward_kinematics(arm, np.asarray(joints, float)[None])
+    return position + R @ (np.asarray(arm.mount) + mount_rotation(arm) @ fk.tip[0])
+
+
+@dataclass(frozen=True)
+class SuspendedResult:
+    """The real poses of a suspended platform with spread attachments, per commanded pose.
+
+    labels : (N,) what each pose is; commanded : (N, 3) nominal platform position [m];
+    joints : (N, n_joints) arm joints (levelling solved for the tilt) or (N, 0); holding : (N,)
+    payload held; lengths : (N, m) commanded cable lengths [m]; position : (N, 3) equilibrium
+    reference point [m]; rotation : (N, 3, 3); tilt : (N,) angle between the platform's up axis
+    and the world's [rad]; shift : (N,) [m]; tip_nominal, tip_actual : (N, 3) tool tip of the
+    level and the real platform [m] (NaN without an arm); tip_error : (N,) [m] (without an arm:
+    the reference point's shift); tensions : (N, m) [N]; slack : (N, m); residual : (N,) force
+    and moment balance residual per unit weight; stable : (N,); attachments : (m, 3) [m].
+    """
+
+    design: object
+    labels: tuple[str, ...]
+    commanded: np.ndarray
+    joints: np.ndarray
+    holding: np.ndarray
+    lengths: np.ndarray
+    position: np.ndarray
+    rotation: np.ndarray
+    tilt: np.ndarray
+    shift: np.ndarray
+    tip_nominal: np.ndarray
+    tip_actual: np.ndarray
+    tip_error: np.ndarray
+    tensions: np.ndarray
+    slack: np.ndarray
+    residual: np.ndarray
+    stable: np.ndarray
+    attachments: np.ndarray
+
+    @property
+    def worst(self) -> int:
+        """Index of the pose with the largest tool-tip error."""
+        return int(np.nanargmax(self.tip_error))
+
+    def summary(self) -> list[str]:
+        d = self.design
+        k = self.worst
+        lines = [f"suspended platform: real pose from {_METHOD}; {len(self.labels)} pose"
+                 f"{'s' if len(self.labels) != 1 else ''}",
+                 f"  largest tilt {math.degrees(float(np.max(self.tilt))):.2f} deg, largest tool-tip error "
+                 f"{1e3 * float(self.tip_error[k]):.1f} mm at {self.labels[k]}",
+                 "  pose                               tilt [deg]  shift [mm]  tip error [mm]  tensions [N]"]
+        for i, lab in enumerate(self.labels):
+            ten = ", ".join(f"{t:.1f}" + (" slack" if s else "") for t, s in zip(self.tensions[i], self.slack[i]))
+            lines.append(f"  {lab[:34]:<34} {math.degrees(self.tilt[i]):10.2f}  {1e3 * self.shift[i]:10.1f}  "
+                         f"{1e3 * self.tip_error[i]:14.1f}  {ten}")
+        if np.any(self.slack):
+            i = int(np.argmax(self.slack.any(axis=1)))
+            names = [n for n, s in zip(d.cable_names, self.slack[i]) if s]
+            lines.append(f"  slack cable at {self.labels[i]}: {', '.join(names)} (the platform hangs on the others)")
+        if not np.all(self.stable):
+            lines.append(f"  {int((~self.stable).sum())} pose(s) with no stable equilibrium found")
+        lines.append(f"  checked by force and moment balance: largest residual {float(np.max(self.residual)):.1e} "
+                     "of the weight")
+        return lines
+
+    def figure(self):
+        """Tilt and tool-tip error per pose (bars), against the accuracy requirement."""
+        import plotly.graph_objects as go
+        from plotly.subplots import make_subplots
+
+        fig = make_subplots(rows=1, cols=2, subplot_titles=("platform tilt [deg]", "tool-tip error [mm]"))
+        x = list(self.labels)
+        fig.add_trace(go.Bar(x=x, y=np.degrees(self.tilt), name="tilt", marker_color="#1f77b4"), row=1, col=1)
+        fig.add_trace(go.Bar(x=x, y=1e3 * self.tip_error, name="tip error", marker_color="#d62728"), row=1, col=2)
+        req = _required_accuracy(self.design)
+        if req is not None:
+            fig.add_hline(y=1e3 * req, line_dash="dash", line_color="#333333", row=1, col=2,
+                          annotation_text="required accuracy")
+        fig.update_layout(title="Suspended platform: tilt under the arm's offset weight", showlegend=False,
+                          margin=dict(l=40, r=10, t=60, b=80))
+        return fig
+
+
+def suspended_poses(design, positions, *, joints=None, holding=False, labels=None, starts: int = 5,
+                    max_level_iter: int = 8) -> SuspendedResult:
+    """The real pose of the platform at each commanded position, the arm at ``joints``.
+
+    Parameters
+    ----------
+    design : a design with a point platform and stated ``[platform] attachments``.
+    positions : (N, 3) nominal platform positions the controller commands [m].
+    joints : (N, n_joints) or (n_joints,) arm joint values [rad or m]; default home.  The
+        levelling joints (if any) are solved for the tilt found.
+    holding : bool or (N,) the gripper holds the payload.
+    labels : names of the poses for the summary.
+    """
+    b = np.asarray(design.platform.built_attachments, float)
+    if design.platform.kind != "point" or b.size == 0:
+        raise ValueError("the suspended-platform model needs a point platform with [platform] attachments stated")
+    P = np.atleast_2d(np.asarray(positions, float))
+    N = len(P)
+    if P.shape[1] != 3 or not np.all(np.isfinite(P)):
+        raise ValueError(f"positions must be finite, shape (N, 3); got shape {P.shape}")
+    arm = design.sections.get("arm")
+    n_j = arm.n if arm is not None else 0
+    if arm is not None:
+        J = np.array(np.broadcast_to(arm.home if joints is None else np.asarray(joints, float), (N, n_j)), float)
+    else:
+        J = np.zeros((N, 0))
+    hold = np.broadcast_to(np.asarray(holding, bool), (N,))
+    labels = tuple(labels) if labels is not None else tuple(f"pose {k + 1}" for k in range(N))
+    a = design.exits
+    up = -np.asarray(design.frame.gravity_direction, float)
+    L = level_lengths(a, b, P)
+    out = {k: [] for k in ("position", "rotation", "tensions", "slack", "residual", "stable", "tip_n", "tip_a")}
+    lev = list(arm.levelling) if arm is not None else []
+    for k in range(N):
+        q = J[k].copy()
+        R = np.eye(3)
+        for _ in range(max_level_iter if lev else 1):
+            if lev:
+                from .arm import levelling_angles
+
+                q[lev] = levelling_angles(arm, R[None], up).angles[0]
+            M, c = _body(design, q, bool(hold[k]))
+            eq = hanging_equilibrium(a, b, L[k], mass=M, center_of_mass=c, gravity=design.gravity, guess=P[k],
+                                     starts=starts)
+            moved = float(np.linalg.norm(eq.rotation - R))
+            R = eq.rotation
+            if moved < 1e-10:
+                break
+        J[k] = q
+        for key, v in (("position", eq.position), ("rotation", eq.rotation), ("tensions", eq.tensions),
+                       ("slack", eq.slack), ("residual", eq.residual), ("stable", eq.stable)):
+            out[key].append(v)
+        if arm is not None:
+            q_level = J[k].copy()
+            if lev:
+                from .arm import levelling_angles
+
+                q_level[lev] = levelling_angles(arm, np.eye(3)[None], up).angles[0]
+            out["tip_n"].append(_tip(design, arm, P[k], np.eye(3), q_level))
+            out["tip_a"].append(_tip(design, arm, eq.position, eq.rotation, J[k]))
+        else:
+            out["tip_n"].append(np.full(3, np.nan))
+            out["tip_a"].append(np.full(3, np.nan))
+    pos = np.array(out["position"])
+    Rs = np.array(out["rotation"])
+    tilt = np.arccos(np.clip(np.einsum("nij,j,i->n", Rs, up, up), -1.0, 1.0))
+    shift = np.linalg.norm(pos - P, axis=1)
+    tn, ta = np.array(out["tip_n"]), np.array(out["tip_a"])
+    err = np.linalg.norm(ta - tn, axis=1) if arm is not None else shift
+    return SuspendedResult(design=design, labels=labels, commanded=P, joints=J, holding=np.array(hold), lengths=L,
+                           position=pos, rotation=Rs, tilt=tilt, shift=shift, tip_nominal=tn, tip_actual=ta,
+                           tip_error=err, tensions=np.array(out["tensions"]), slack=np.array(out["slack"]),
+                           residual=np.array(out["residual"]), stable=np.array(out["stable"]), attachments=b)
+
+
+def _joint_samples(arm) -> tuple[np.ndarray, list[str]]:
+    """Arm joint sets for the design check: home, then each joint alone at its limits, and every
+    combination of the wrist joints' limits and home (the arm reaching out)."""
+    import itertools
+
+    rows, names = [arm.home.copy()], ["arm at home"]
+    for k, j in enumerate(arm.joints):
+        if j.role == "levelling":
+            continue
+        for v, w in ((j.lower, "lower"), (j.upper, "upper")):
+            q = arm.home.copy()
+            q[k] = v
+            rows.append(q)
+            names.append(f"{j.name} at its {w} limit")
+    free = [k for k, j in enumerate(arm.joints) if j.role != "levelling"]
+    for combo in itertools.product(*[(arm.joints[k].lower, arm.home[k], arm.joints[k].upper) for k in free]):
+        q = arm.home.copy()
+        q[free] = combo
+        rows.append(q)
+        names.append("arm " + ", ".join(f"{arm.joints[k].name} {arm.joints[k].display(v)}" for k, v in zip(free, combo)))
+    return np.array(rows), names
+
+
+def design_poses(design, *, top: int = 4, starts: int = 3) -> SuspendedResult:
+    """The design-level sweep: the home position and the task box centre with the arm at its
+    home and at the joint sets that move the centre of mass furthest sideways (payload held
+    and not), then the worst of those at the task box's corners."""
+    arm = design.sections.get("arm")
+    home = np.asarray(design.home_pose[:3], float)
+    places = [("home", home)]
+    t = design.task
+    corners = []
+    if t.box_lower is not None:
+        lo, hi = np.asarray(t.box_lower, float), np.asarray(t.box_upper, float)
+        places.append(("task box centre", 0.5 * (lo + hi)))
+        corners = [(f"task box corner ({', '.join(f'{v:.2f}' for v in c)}) m", c)
+                   for c in (np.array([x, y, z]) for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2]))]
+    elif t.points:
+        places += [(f"task point {k + 1}", np.asarray(p, float)) for k, p in enumerate(t.points[:8])]
+    up = -np.asarray(design.frame.gravity_direction, float)
+    cases = [(None, "no arm", False)]
+    if arm is not None:
+        rows, names = _joint_samples(arm)
+        scored = []
+        for q, name in zip(rows, names):
+            for hold in (False, True):
+                M, c = _body(design, q, hold)
+                lever = float(np.linalg.norm(c - (c @ up) * up))
+                scored.append((lever, q, name + (", payload held" if hold else ""), hold))
+        scored.sort(key=lambda s: -s[0])
+        cases = [(rows[0], names[0] + ", payload held", True)] + [(q, n, h) for _, q, n, h in scored[:top]]
+    labels, P, Js, H = [], [], [], []
+    for pname, p in places:
+        for q, cname, hold in cases:
+            labels.append(f"{pname}, {cname}")
+            P.append(p)
+            Js.append(q if q is not None else np.zeros(0))
+            H.append(hold)
+    res = suspended_poses(design, np.array(P), joints=np.array(Js) if arm is not None else None,
+                          holding=np.array(H), labels=labels, starts=starts)
+    if corners:
+        k = res.worst
+        more = suspended_poses(design, np.array([c for _, c in corners]),
+                               joints=res.joints[k] if arm is not None else None, holding=bool(res.holding[k]),
+                               labels=[f"{n}, {labels[k].split(', ', 1)[1]}" for n, _ in corners], starts=starts)
+        res = _concat(res, more)
+    return res
+
+
+def _concat(r1: SuspendedResult, r2: SuspendedResult) -> SuspendedResult:
+    from dataclasses import fields, replace
+
+    vals = {}
+    for f in fields(SuspendedResult):
+        if f.name in ("design", "attachments"):
+            continue
+        v1, v2 = getattr(r1, f.name), getattr(r2, f.name)
+        vals[f.name] = v1 + v2 if f.name == "labels" else np.concatenate([v1, v2])
+    return replace(r1, **vals)
+
+
+def _required_accuracy(design) -> float | None:
+    if design.sections.get("errors") is None:
+        return None
+    from .accuracy import error_budget
+
+    return error_budget(design).required_accuracy
+
+
+def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[Check]:
+    """The tilt of a point platform with spread attachments against the accuracy needed.
+
+    Judged on the tool-tip error the tilt alone causes, against ``[errors] required_accuracy``
+    (fail above it, warn above half of it); without a required accuracy, on the tilt against
+    the practice limit ``platform_tilt_max``.  A slack cable at the real pose fails.  Empty for
+    a platform whose attachments coincide (the point model holds; see
+    :func:`design_assumptions`).
+    """
+    if not has_spread_attachments(design):
+        return []
+    from .practice import PRACTICE, practice_value
+
+    res = design_poses(design) if suspended is None else suspended
+    k = res.worst
+    where = f"worst at {res.labels[k]}: tilt {math.degrees(float(res.tilt[k])):.2f} deg"
+    req = _required_accuracy(design)
+    out = []
+    if req is not None:
+        value = 1e3 * float(res.tip_error[k])
+        margin, status = judge(value, 1e3 * req, upper=True, warn_limit=SUSPENDED_WARN_SHARE * 1e3 * req)
+        out.append(Check(key="suspended_tip_error", subject="suspended platform",
+                         title="tool-tip error from the platform's tilt under the arm's offset weight",
+                         value=value, limit=1e3 * req, unit="mm", margin=margin, status=status,
+                         source=f"required_accuracy in the design's [errors] table; warn above "
+                                f"{SUSPENDED_WARN_SHARE:.0%} of it: common practice, no source",
+                         detail=f"{where}; pose from {_METHOD}"))
+    else:
+        lim = practice_value("platform_tilt_max", design.practice)
+        i = int(np.argmax(res.tilt))
+        value = math.degrees(float(res.tilt[i]))
+        margin, status = judge(value, math.degrees(lim), upper=True)
+        out.append(Check(key="suspended_tilt", subject="suspended platform",
+                         title="platform tilt under the arm's offset weight", value=value, limit=math.degrees(lim),
+                         unit="deg", margin=margin, status=status, source=PRACTICE["platform_tilt_max"].source,
+                         detail=f"worst at {res.labels[i]} (no required_accuracy in [errors] to judge the tool tip); "
+                                f"pose from {_METHOD}"))
+    slack = res.slack.any(axis=1)
+    if slack.any() or not np.all(res.stable):
+        i = int(np.argmax(slack)) if slack.any() else int(np.argmin(res.stable))
+        names = [n for n, s in zip(design.cable_names, res.slack[i]) if s]
+        why = (f"cable {', '.join(names)} goes slack" if slack.any() else "no stable equilibrium found")
+        out.append(Check(key="suspended_taut", subject="suspended platform",
+                         title="every cable taut at the real (tilted) pose", value=float(slack.sum()), limit=0.0,
+                         unit="poses", margin=-float(max(slack.sum(), 1)), status="fail",
+                         source="cables only pull (statics); pose from " + _METHOD,
+                         detail=f"{why} at {res.labels[i]}"))
+    return out
+
+
+def design_assumptions(design, **options) -> list[str]:
+    """What the verdicts on a point platform rest on (printed on the review sheet)."""
+    if design.platform.kind != "point":
+        return []
+    if not has_spread_attachments(design):
+        return ["The platform is taken to stay level: its attachments coincide (a point platform), so it cannot "
+                "be tilted by a moment. A platform whose cables meet it at separate points tilts under an offset "
+                "load: state [platform] attachments to have the tilt computed."]
+    return ["The platform hangs from separate attachments and is under-constrained: its real pose (tilt and shift "
+            "under the offset weight of the arm and payload) is the least-potential-energy pose for the commanded "
+            "cable lengths (Carricato and Merlet 2013), checked by force and moment balance. The winches are "
+            "taken to command the lengths of the level platform at the nominal position; the arm's joints are "
+            "held, levelling joints re-level the arm base.",
+            "The workspace, tension and drivetrain checks use the point model (cables meeting at the platform's "
+            "reference point); the suspended-platform check reports the tensions at the real pose."]
+
+
+def latex_equations(kind: str) -> dict[str, str]:
+    """The suspended-platform equations (point platforms with spread attachments)."""
+    if kind != "point":
+        return {}
+    return {
+        "real pose (least potential energy)": r"\min_{\mathbf{p},R}\ -M\,\mathbf{g}\cdot(\mathbf{p} + R\,\mathbf{c})"
+                                              r"\quad \text{s.t.}\quad \lVert \mathbf{a}_i - \mathbf{p} - R\,"
+                                              r"\mathbf{b}_i \rVert \le L_i",
+        "commanded lengths (level platform)": r"L_i = \lVert \mathbf{a}_i - \mathbf{p}_c - \mathbf{b}_i \rVert",
+    }

@@ -1,0 +1,172 @@
+"""The suspended platform with separate attachments: equilibrium pose, tilt, checks."""
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from cablekit.checks import CHECK_PROVIDERS, run_all, run_assumptions
+from cablekit.design import DesignError, dumps_design, loads_design
+from cablekit.suspended import (design_assumptions, design_checks, design_poses, hanging_equilibrium,
+                                has_spread_attachments, level_lengths, suspended_poses)
+
+EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
+
+G = np.array([0.0, 0.0, -9.80665])
+GREENHOUSE_TEXT = (EXAMPLES / "greenhouse_tray_3cable.toml").read_text()
+
+
+def _triangle(r):
+    return np.array([[r * math.cos(t), r * math.sin(t), 0.0] for t in (0.0, 2 * math.pi / 3, 4 * math.pi / 3)])
+
+
+def test_body_hanging_from_one_point_rests_with_its_centre_of_mass_below_it():
+    # Three cables from ONE exit point with equal lengths hold the body rigidly to that point: a
+    # body hanging from one point rests with its centre of gravity vertically below the point of
+    # suspension (statics of a pendulum; e.g. Meriam and Kraige, Engineering Mechanics: Statics,
+    # centre of gravity chapter; from memory).  Apex height h = sqrt(L^2 - r^2) above the
+    # attachment plane, centre of mass at (e, 0, -c): tilt = atan(e / (h + c)).
+    r, L, e, c = 0.2, 1.0, 0.05, 0.1
+    b = _triangle(r)
+    apex = np.array([0.0, 0.0, 3.0])
+    h = math.sqrt(L * L - r * r)
+    eq = hanging_equilibrium(np.tile(apex, (3, 1)), b, np.full(3, L), mass=2.0, center_of_mass=[e, 0, -c],
+                             gravity=G, guess=apex - [0, 0, h])
+    up = np.array([0.0, 0.0, 1.0])
+    tilt = math.acos(eq.rotation[:, 2] @ up)
+    assert tilt == pytest.approx(math.atan2(e, h + c), abs=1e-6)  # SLSQP ftol 1e-14: micro-radian agreement
+    com = eq.position + eq.rotation @ [e, 0, -c]
+    assert np.allclose(com[:2], apex[:2], atol=1e-6)
+    assert eq.stable and eq.residual < 1e-6 and np.all(eq.tensions > 0)
+
+
+def test_parallel_cables_share_the_weight_by_the_lever_rule_and_stay_level():
+    # Three vertical cables of equal length (a trapeze): with the centre of mass inside the
+    # attachment triangle the platform hangs level and each tension is the weight times the
+    # barycentric coordinate of the centre of mass (lever rule, statics; from memory).
+    b = np.array([[0.0, 0.0, 0.0], [0.4, 0.0, 0.0], [0.0, 0.3, 0.0]])
+    a = b + [0.0, 0.0, 2.0]
+    com = np.array([0.1, 0.1, -0.05])
+    eq = hanging_equilibrium(a, b, np.full(3, 2.0), mass=3.0, center_of_mass=com, gravity=G, guess=[0, 0, 0])
+    lam = np.array([1 - com[0] / 0.4 - com[1] / 0.3, com[0] / 0.4, com[1] / 0.3])  # barycentric coordinates
+    assert np.allclose(eq.tensions, lam * 3.0 * 9.80665, rtol=1e-6)  # optimiser tolerance
+    assert np.allclose(eq.rotation, np.eye(3), atol=1e-6) and not eq.slack.any()
+
+
+def test_centre_of_mass_outside_the_attachments_slackens_a_cable():
+    # the same trapeze with the centre of mass beyond the edge b0-b1: cable 2 cannot push, so
+    # it goes slack and the platform hangs from the two others (cables only pull)
+    b = np.array([[0.0, 0.0, 0.0], [0.4, 0.0, 0.0], [0.0, 0.3, 0.0]])
+    eq = hanging_equilibrium(b + [0, 0, 2.0], b, np.full(3, 2.0), mass=3.0, center_of_mass=[0.2, -0.1, -0.05],
+                             gravity=G, guess=[0, 0, 0])
+    assert eq.slack.tolist() == [False, False, True] and eq.tensions[2] == 0.0
+    assert eq.residual < 1e-6 and eq.stable
+
+
+def test_two_cable_planar_body_three_forces_meet_at_one_point():
+    # A bar on two cables in the x-z plane with its centre of mass off-centre: three forces in
+    # equilibrium are concurrent (three-force member; Meriam and Kraige, Engineering Mechanics:
+    # Statics, sec. 3/3; from memory): the cable lines and the vertical through the centre of
+    # mass meet at one point.
+    a = np.array([[-1.0, 0.0, 2.0], [1.2, 0.0, 2.0]])
+    b = np.array([[-0.3, 0.0, 0.0], [0.3, 0.0, 0.0]])
+    L = level_lengths(a, b, [[0.0, 0.0, 0.5]])[0]
+    com = np.array([0.15, 0.0, -0.1])
+    eq = hanging_equilibrium(a, b, L, mass=1.5, center_of_mass=com, gravity=G, guess=[0, 0, 0.5])
+    att = eq.position + b @ eq.rotation.T
+    d0, d1 = a[0] - att[0], a[1] - att[1]
+    # intersection of the two cable lines in the x-z plane
+    M = np.array([[d0[0], -d1[0]], [d0[2], -d1[2]]])
+    s = np.linalg.solve(M, (att[1] - att[0])[[0, 2]])
+    X = att[0] + s[0] * d0
+    c_world = eq.position + eq.rotation @ com
+    assert X[0] == pytest.approx(c_world[0], abs=1e-6)
+    assert abs(eq.position[1]) < 1e-6 and eq.residual < 1e-6  # stays in its plane (optimiser tolerance)
+    tilt = math.degrees(math.acos(eq.rotation[2, 2]))
+    assert tilt > 1.0  # an offset centre of mass tilts a two-point suspension
+
+
+def _greenhouse(text=GREENHOUSE_TEXT):
+    return loads_design(text)
+
+
+def test_point_platform_attachments_parse_save_and_coincide():
+    d = _greenhouse()
+    assert d.platform.kind == "point" and len(d.platform.built_attachments) == 3
+    assert has_spread_attachments(d)
+    assert np.allclose(d.attachments, 0.0)  # the point model still drives the kinematics
+    again = loads_design(dumps_design(d))
+    assert np.allclose(again.platform.built_attachments, d.platform.built_attachments, rtol=0, atol=1e-12)
+    same = GREENHOUSE_TEXT.replace('["-0.0433, -0.025, 0 m", "0.0433, -0.025, 0 m", "0, 0.05, 0 m"]',
+                                   '["0, 0, 0 m", "0, 0, 0 m", "0, 0, 0 m"]')
+    d0 = loads_design(same)
+    assert not has_spread_attachments(d0) and design_checks(d0) == []
+    assert "stay level" in " ".join(design_assumptions(d0))
+    assert any("stay level" in a for a in run_assumptions(d0))
+
+
+@pytest.mark.parametrize("bad, field", [
+    ('["0, 0, 0 m", "0, 0, 0 m"]', "platform.attachments"),
+    ('["0, 0, 0 m", "0, 0, 0 m", "1, 2 m"]', "platform.attachments[2]"),
+    ('"0, 0, 0 m"', "platform.attachments"),
+])
+def test_bad_attachments_name_the_field(bad, field):
+    text = GREENHOUSE_TEXT.replace('["-0.0433, -0.025, 0 m", "0.0433, -0.025, 0 m", "0, 0.05, 0 m"]', bad)
+    with pytest.raises(DesignError) as exc:
+        loads_design(text)
+    assert field in [p.path for p in exc.value.problems]
+
+
+def test_greenhouse_task_pose_tilts_about_ten_degrees_and_balances():
+    d = _greenhouse()
+    # 'turn to shelf' of the demo task: wrist turned 90 deg and tilted 30 deg, tray held
+    res = suspended_poses(d, [[1.8, 1.1, 0.9]], joints=[0.08, math.pi / 2, math.radians(30)], holding=True)
+    assert 3.0 < math.degrees(res.tilt[0]) < 15.0
+    assert res.tip_error[0] > 5e-3 and res.stable[0] and res.residual[0] < 1e-6
+    # independent force balance: the tensions carry the total weight
+    u = d.exits - (res.position[0] + res.attachments @ res.rotation[0].T)
+    u /= np.linalg.norm(u, axis=1, keepdims=True)
+    assert np.allclose(res.tensions[0] @ u, [0, 0, d.total_mass * 9.80665], rtol=1e-6)
+    # arm at home, platform under the exits' centroid: the cable lines meet on the axis, above
+    # the centre of mass, so the platform hangs level
+    centre = suspended_poses(d, [[1.5, 0.8667, 1.2]], holding=True)
+    assert math.degrees(centre.tilt[0]) < 1e-3 and centre.tip_error[0] < 1e-5
+    # ... but off-centre the cable lines do not meet above it: it tilts with no arm offset at all
+    side = suspended_poses(d, [[1.8, 1.1, 0.9]], holding=True)
+    assert math.degrees(side.tilt[0]) > 1.0 and side.residual[0] < 1e-6 and side.stable[0]
+    assert res.summary() and res.figure().data
+
+
+def test_greenhouse_fails_the_tip_error_check_naming_its_source():
+    d = _greenhouse()
+    checks = design_checks(d)
+    c = next(c for c in checks if c.key == "suspended_tip_error")
+    assert c.status == "fail" and c.value > c.limit == pytest.approx(5.0)
+    assert "required_accuracy" in c.source
+    assert any(c.key == "suspended_tip_error" for c in run_all(d))
+    assert "cablekit.suspended:design_checks" in CHECK_PROVIDERS
+
+
+def test_without_required_accuracy_the_tilt_limit_judges():
+    text = GREENHOUSE_TEXT.replace('required_accuracy = "5 mm"\n', "")
+    d = _greenhouse(text)
+    c = next(c for c in design_checks(d) if c.key == "suspended_tilt")
+    assert c.status == "fail" and c.unit == "deg" and c.limit == pytest.approx(1.0)
+    assert "common practice, no source" in c.source
+
+
+def test_nearly_coincident_attachments_pass():
+    # a bare platform (no arm) whose eyes sit on a 2 mm ring, centre of mass 50 mm below: the
+    # tilt stays small over the task box and the check passes (a check that can pass)
+    text = GREENHOUSE_TEXT.split("# The servo arm under the platform")[0]
+    text = text.replace('["-0.0433, -0.025, 0 m", "0.0433, -0.025, 0 m", "0, 0.05, 0 m"]',
+                        '["-1.732, -1, 0 mm", "1.732, -1, 0 mm", "0, 2, 0 mm"]')
+    text = text.replace('mass = "1.2 kg"\n', 'mass = "1.2 kg"\ncenter_of_mass = "0, 0, -0.05 m"\n', 1)
+    errors = GREENHOUSE_TEXT[GREENHOUSE_TEXT.index("[errors]"):]
+    d = loads_design(text + errors)
+    assert has_spread_attachments(d)
+    checks = design_checks(d)
+    assert [c.status for c in checks] == ["pass"], checks
+    res = design_poses(d)
+    assert np.all(res.stable) and np.all(res.residual < 1e-6)
