@@ -53,9 +53,11 @@ __all__ = [
     "SUSPENDED_WARN_SHARE",
     "BodyEquilibrium",
     "hanging_equilibrium",
+    "pendulum_equilibrium",
     "level_lengths",
     "SuspendedResult",
     "has_spread_attachments",
+    "meeting_attachments",
     "suspended_poses",
     "design_poses",
     "design_checks",
@@ -68,6 +70,7 @@ COINCIDE_TOL = 1e-4  # attachments closer than this [m] are taken to coincide (p
 # rest of the error budget needs the other half (common practice, no source)
 SUSPENDED_WARN_SHARE = 0.5
 _METHOD = "least potential energy subject to the cable lengths (Carricato and Merlet 2013)"
+_PENDULUM = "a pendulum about the point where the cables meet (centre of mass below it)"
 
 
 # --------------------------------------------------------------------------------------
@@ -233,6 +236,58 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
                            height=best_h, starts=len(found), agree=int(agree))
 
 
+def _rotation_between(v, w) -> np.ndarray:
+    """The least rotation taking unit vector ``v`` to unit vector ``w`` (no turn about ``w``)."""
+    axis = np.cross(v, w)
+    s, c = float(np.linalg.norm(axis)), float(np.clip(v @ w, -1.0, 1.0))
+    if s < 1e-15:
+        if c > 0:
+            return np.eye(3)
+        perp = np.cross(v, [1.0, 0.0, 0.0] if abs(v[0]) < 0.9 else [0.0, 1.0, 0.0])
+        return _exp(math.pi * perp / np.linalg.norm(perp))
+    return _exp(axis / s * math.atan2(s, c))
+
+
+def pendulum_equilibrium(exits, meeting, point, *, mass: float, center_of_mass, gravity) -> BodyEquilibrium:
+    """The equilibrium of a body whose cables all meet it at one point: a pendulum.
+
+    Parameters
+    ----------
+    exits : (m, 3) exit points [m]; meeting : (3,) the common attachment in the body frame [m];
+    point : (3,) where the cables hold that attachment in the world (the point model's
+    position) [m]; mass [kg]; center_of_mass : (3,) body frame [m]; gravity : (3,) [m/s**2].
+
+    Notes
+    -----
+    Forces through one point cannot resist a moment: the body turns about the meeting point
+    until its centre of mass lies on the vertical below it (a body hanging from one point,
+    statics).  ``R`` is the least rotation doing that; the turn about the vertical is free
+    (not held by the cables) and taken as zero.  Tensions: ``U t = -M g`` (least-norm when
+    more than three cables share the load).
+    """
+    a = np.asarray(exits, float)
+    b0 = np.asarray(meeting, float)
+    O = np.asarray(point, float)
+    c = np.asarray(center_of_mass, float)
+    g = np.asarray(gravity, float)
+    gn = float(np.linalg.norm(g))
+    v = c - b0
+    lever = float(np.linalg.norm(v))
+    R = _rotation_between(v / lever, g / gn) if lever > 1e-12 else np.eye(3)
+    p = O - R @ b0
+    r = np.broadcast_to(R @ b0, a.shape)
+    l = a - p - r
+    u = l / np.linalg.norm(l, axis=1, keepdims=True)
+    weight = mass * g
+    t = np.linalg.lstsq(u.T, -weight, rcond=None)[0]
+    W = np.vstack([u.T, np.cross(r, u).T])
+    w_ext = np.concatenate([weight, np.cross(R @ c, weight)])
+    residual = float(np.linalg.norm(W @ t + w_ext) / (mass * gn))
+    up = -g / gn
+    return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual, stable=lever > 1e-12,
+                           min_curvature=lever, slack=t < 0, height=float(up @ (p + R @ c)), starts=1, agree=1)
+
+
 def _reduced_curvature(a, b, L, c, up, p, R, lam, taut, h: float = 1e-4) -> float:
     """Least eigenvalue of the Lagrangian's Hessian on the taut cables' tangent space [m].
 
@@ -315,10 +370,11 @@ class SuspendedResult:
     joints : (N, n_joints) arm joints (levelling solved for the tilt) or (N, 0); holding : (N,)
     payload held; lengths : (N, m) commanded cable lengths [m]; position : (N, 3) equilibrium
     reference point [m]; rotation : (N, 3, 3); tilt : (N,) angle between the platform's up axis
-    and the world's [rad]; shift : (N,) [m]; tip_nominal, tip_actual : (N, 3) tool tip of the
+    and the world's [rad]; shift : (N,) reference point's move [m]; tip_nominal, tip_actual : (N, 3) tool tip of the
     level and the real platform [m] (NaN without an arm); tip_error : (N,) [m] (without an arm:
     the reference point's shift); tensions : (N, m) [N]; slack : (N, m); residual : (N,) force
-    and moment balance residual per unit weight; stable : (N,); attachments : (m, 3) [m].
+    and moment balance residual per unit weight; stable : (N,); attachments : (m, 3) [m];
+    spread : the attachments are separate (False: they meet at one point, a pendulum).
     """
 
     design: object
@@ -339,6 +395,7 @@ class SuspendedResult:
     residual: np.ndarray
     stable: np.ndarray
     attachments: np.ndarray
+    spread: bool = True
 
     @property
     def worst(self) -> int:
@@ -348,7 +405,8 @@ class SuspendedResult:
     def summary(self) -> list[str]:
         d = self.design
         k = self.worst
-        lines = [f"suspended platform: real pose from {_METHOD}; {len(self.labels)} pose"
+        how = _METHOD if self.spread else _PENDULUM
+        lines = [f"suspended platform: real pose from {how}; {len(self.labels)} pose"
                  f"{'s' if len(self.labels) != 1 else ''}",
                  f"  largest tilt {math.degrees(float(np.max(self.tilt))):.2f} deg, largest tool-tip error "
                  f"{1e3 * float(self.tip_error[k]):.1f} mm at {self.labels[k]}",
@@ -385,22 +443,35 @@ class SuspendedResult:
         return fig
 
 
+def meeting_attachments(design) -> np.ndarray:
+    """The attachments the real pose is computed with (m, 3) [m]: the stated ``[platform]
+    attachments``, else every cable at the platform's reference point."""
+    b = np.asarray(design.platform.built_attachments, float)
+    return b if b.size else np.zeros((design.m, 3))
+
+
 def suspended_poses(design, positions, *, joints=None, holding=False, labels=None, starts: int = 5,
-                    max_level_iter: int = 8) -> SuspendedResult:
+                    max_level_iter: int = 30) -> SuspendedResult:
     """The real pose of the platform at each commanded position, the arm at ``joints``.
 
     Parameters
     ----------
-    design : a design with a point platform and stated ``[platform] attachments``.
+    design : a design with a point platform (attachments stated or taken to coincide).
     positions : (N, 3) nominal platform positions the controller commands [m].
     joints : (N, n_joints) or (n_joints,) arm joint values [rad or m]; default home.  The
-        levelling joints (if any) are solved for the tilt found.
+        levelling joints (if any) are solved for the tilt found, within their limits.
     holding : bool or (N,) the gripper holds the payload.
     labels : names of the poses for the summary.
+
+    Notes
+    -----
+    Spread attachments: :func:`hanging_equilibrium` (least potential energy).  Coinciding
+    attachments: :func:`pendulum_equilibrium` (closed form).
     """
-    b = np.asarray(design.platform.built_attachments, float)
-    if design.platform.kind != "point" or b.size == 0:
-        raise ValueError("the suspended-platform model needs a point platform with [platform] attachments stated")
+    if design.platform.kind != "point":
+        raise ValueError("the suspended-platform model is for point platforms (a rigid one is held by its cables)")
+    b = meeting_attachments(design)
+    spread = has_spread_attachments(design)
     P = np.atleast_2d(np.asarray(positions, float))
     N = len(P)
     if P.shape[1] != 3 or not np.all(np.isfinite(P)):
@@ -416,33 +487,38 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
     a = design.exits
     up = -np.asarray(design.frame.gravity_direction, float)
     L = level_lengths(a, b, P)
-    out = {k: [] for k in ("position", "rotation", "tensions", "slack", "residual", "stable", "tip_n", "tip_a")}
     lev = list(arm.levelling) if arm is not None else []
+
+    def levelled(q, R):
+        from .arm import levelling_angles
+
+        q = q.copy()
+        q[lev] = np.clip(levelling_angles(arm, R[None], up).angles[0], arm.lower[lev], arm.upper[lev])
+        return q
+
+    out = {k: [] for k in ("position", "rotation", "tensions", "slack", "residual", "stable", "tip_n", "tip_a")}
     for k in range(N):
         q = J[k].copy()
         R = np.eye(3)
         for _ in range(max_level_iter if lev else 1):
             if lev:
-                from .arm import levelling_angles
-
-                q[lev] = levelling_angles(arm, R[None], up).angles[0]
+                q = levelled(q, R)
             M, c = _body(design, q, bool(hold[k]))
-            eq = hanging_equilibrium(a, b, L[k], mass=M, center_of_mass=c, gravity=design.gravity, guess=P[k],
-                                     starts=starts)
+            if spread:
+                eq = hanging_equilibrium(a, b, L[k], mass=M, center_of_mass=c, gravity=design.gravity, guess=P[k],
+                                         starts=starts)
+            else:
+                eq = pendulum_equilibrium(a, b[0], P[k] + b[0], mass=M, center_of_mass=c, gravity=design.gravity)
             moved = float(np.linalg.norm(eq.rotation - R))
             R = eq.rotation
-            if moved < 1e-10:
+            if moved < 1e-9:
                 break
         J[k] = q
         for key, v in (("position", eq.position), ("rotation", eq.rotation), ("tensions", eq.tensions),
                        ("slack", eq.slack), ("residual", eq.residual), ("stable", eq.stable)):
             out[key].append(v)
         if arm is not None:
-            q_level = J[k].copy()
-            if lev:
-                from .arm import levelling_angles
-
-                q_level[lev] = levelling_angles(arm, np.eye(3)[None], up).angles[0]
+            q_level = levelled(J[k], np.eye(3)) if lev else J[k]
             out["tip_n"].append(_tip(design, arm, P[k], np.eye(3), q_level))
             out["tip_a"].append(_tip(design, arm, eq.position, eq.rotation, J[k]))
         else:
@@ -457,25 +533,30 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
     return SuspendedResult(design=design, labels=labels, commanded=P, joints=J, holding=np.array(hold), lengths=L,
                            position=pos, rotation=Rs, tilt=tilt, shift=shift, tip_nominal=tn, tip_actual=ta,
                            tip_error=err, tensions=np.array(out["tensions"]), slack=np.array(out["slack"]),
-                           residual=np.array(out["residual"]), stable=np.array(out["stable"]), attachments=b)
+                           residual=np.array(out["residual"]), stable=np.array(out["stable"]), attachments=b,
+                           spread=spread)
 
 
-def _joint_samples(arm) -> tuple[np.ndarray, list[str]]:
-    """Arm joint sets for the design check: home, then each joint alone at its limits, and every
-    combination of the wrist joints' limits and home (the arm reaching out)."""
+def _joint_samples(arm, *, cap: int = 2000) -> tuple[np.ndarray, list[str]]:
+    """Arm joint sets for the design check: every combination of each non-levelling joint's
+    limits, home and (revolute joints) the multiples of 45 deg between them (the arm reaching
+    out in every direction); limits and home only when that would exceed ``cap`` sets."""
     import itertools
 
-    rows, names = [arm.home.copy()], ["arm at home"]
-    for k, j in enumerate(arm.joints):
-        if j.role == "levelling":
-            continue
-        for v, w in ((j.lower, "lower"), (j.upper, "upper")):
-            q = arm.home.copy()
-            q[k] = v
-            rows.append(q)
-            names.append(f"{j.name} at its {w} limit")
     free = [k for k, j in enumerate(arm.joints) if j.role != "levelling"]
-    for combo in itertools.product(*[(arm.joints[k].lower, arm.home[k], arm.joints[k].upper) for k in free]):
+
+    def values(k, fine):
+        j = arm.joints[k]
+        v = {j.lower, arm.home[k], j.upper}
+        if fine and j.revolute:
+            v |= {s * math.pi / 4 for s in range(-8, 9) if j.lower < s * math.pi / 4 < j.upper}
+        return sorted(v)
+
+    grid = [values(k, True) for k in free]
+    if math.prod(len(g) for g in grid) > cap:
+        grid = [values(k, False) for k in free]
+    rows, names = [arm.home.copy()], ["arm at home"]
+    for combo in itertools.product(*grid):
         q = arm.home.copy()
         q[free] = combo
         rows.append(q)
@@ -534,7 +615,7 @@ def _concat(r1: SuspendedResult, r2: SuspendedResult) -> SuspendedResult:
 
     vals = {}
     for f in fields(SuspendedResult):
-        if f.name in ("design", "attachments"):
+        if f.name in ("design", "attachments", "spread"):
             continue
         v1, v2 = getattr(r1, f.name), getattr(r2, f.name)
         vals[f.name] = v1 + v2 if f.name == "labels" else np.concatenate([v1, v2])
@@ -549,20 +630,35 @@ def _required_accuracy(design) -> float | None:
     return error_budget(design).required_accuracy
 
 
-def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[Check]:
-    """The tilt of a point platform with spread attachments against the accuracy needed.
+def _needs_check(design) -> bool:
+    """Point platforms whose tilt can matter: separate attachments, an arm, or a centre of mass
+    off the vertical through the meeting point."""
+    if design.platform.kind != "point":
+        return False
+    if has_spread_attachments(design) or design.sections.get("arm") is not None:
+        return True
+    up = -np.asarray(design.frame.gravity_direction, float)
+    b0 = meeting_attachments(design)[0]
+    M, c = _body(design, None, False)
+    v = c - b0
+    return bool(np.linalg.norm(v - (v @ up) * up) > COINCIDE_TOL or v @ up > 0)
 
-    Judged on the tool-tip error the tilt alone causes, against ``[errors] required_accuracy``
-    (fail above it, warn above half of it); without a required accuracy, on the tilt against
-    the practice limit ``platform_tilt_max``.  A slack cable at the real pose fails.  Empty for
-    a platform whose attachments coincide (the point model holds; see
+
+def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[Check]:
+    """The real tilt of a point platform against the accuracy needed.
+
+    Judged on the tool-tip error the tilt causes, against ``[errors] required_accuracy`` (fail
+    above it, warn above half of it); without a required accuracy, on the tilt against the
+    practice limit ``platform_tilt_max``.  A slack cable at the real pose fails.  Empty when
+    nothing can tilt the platform (no arm, centre of mass below the meeting point; see
     :func:`design_assumptions`).
     """
-    if not has_spread_attachments(design):
+    if not _needs_check(design):
         return []
     from .practice import PRACTICE, practice_value
 
     res = design_poses(design) if suspended is None else suspended
+    how = _METHOD if res.spread else _PENDULUM
     k = res.worst
     where = f"worst at {res.labels[k]}: tilt {math.degrees(float(res.tilt[k])):.2f} deg"
     req = _required_accuracy(design)
@@ -571,31 +667,32 @@ def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[C
         value = 1e3 * float(res.tip_error[k])
         margin, status = judge(value, 1e3 * req, upper=True, warn_limit=SUSPENDED_WARN_SHARE * 1e3 * req)
         out.append(Check(key="suspended_tip_error", subject="suspended platform",
-                         title="tool-tip error from the platform's tilt under the arm's offset weight",
+                         title="tool-tip error from the platform's real tilt (arm and payload weight)",
                          value=value, limit=1e3 * req, unit="mm", margin=margin, status=status,
                          source=f"required_accuracy in the design's [errors] table; warn above "
                                 f"{SUSPENDED_WARN_SHARE:.0%} of it: common practice, no source",
-                         detail=f"{where}; pose from {_METHOD}"))
+                         detail=f"{where}; pose from {how}"))
     else:
         lim = practice_value("platform_tilt_max", design.practice)
         i = int(np.argmax(res.tilt))
         value = math.degrees(float(res.tilt[i]))
         margin, status = judge(value, math.degrees(lim), upper=True)
         out.append(Check(key="suspended_tilt", subject="suspended platform",
-                         title="platform tilt under the arm's offset weight", value=value, limit=math.degrees(lim),
-                         unit="deg", margin=margin, status=status, source=PRACTICE["platform_tilt_max"].source,
+                         title="platform tilt under the arm's and payload's weight", value=value,
+                         limit=math.degrees(lim), unit="deg", margin=margin, status=status,
+                         source=PRACTICE["platform_tilt_max"].source,
                          detail=f"worst at {res.labels[i]} (no required_accuracy in [errors] to judge the tool tip); "
-                                f"pose from {_METHOD}"))
+                                f"pose from {how}"))
     slack = res.slack.any(axis=1)
     if slack.any() or not np.all(res.stable):
         i = int(np.argmax(slack)) if slack.any() else int(np.argmin(res.stable))
         names = [n for n, s in zip(design.cable_names, res.slack[i]) if s]
         why = (f"cable {', '.join(names)} goes slack" if slack.any() else "no stable equilibrium found")
+        n_bad = float(np.sum(slack | ~res.stable))
         out.append(Check(key="suspended_taut", subject="suspended platform",
-                         title="every cable taut at the real (tilted) pose", value=float(slack.sum()), limit=0.0,
-                         unit="poses", margin=-float(max(slack.sum(), 1)), status="fail",
-                         source="cables only pull (statics); pose from " + _METHOD,
-                         detail=f"{why} at {res.labels[i]}"))
+                         title="every cable taut and the pose stable at the real (tilted) pose", value=n_bad,
+                         limit=0.0, unit="poses", margin=-n_bad, status="fail",
+                         source="cables only pull (statics); pose from " + how, detail=f"{why} at {res.labels[i]}"))
     return out
 
 
@@ -603,17 +700,23 @@ def design_assumptions(design, **options) -> list[str]:
     """What the verdicts on a point platform rest on (printed on the review sheet)."""
     if design.platform.kind != "point":
         return []
-    if not has_spread_attachments(design):
-        return ["The platform is taken to stay level: its attachments coincide (a point platform), so it cannot "
-                "be tilted by a moment. A platform whose cables meet it at separate points tilts under an offset "
-                "load: state [platform] attachments to have the tilt computed."]
-    return ["The platform hangs from separate attachments and is under-constrained: its real pose (tilt and shift "
-            "under the offset weight of the arm and payload) is the least-potential-energy pose for the commanded "
-            "cable lengths (Carricato and Merlet 2013), checked by force and moment balance. The winches are "
-            "taken to command the lengths of the level platform at the nominal position; the arm's joints are "
-            "held, levelling joints re-level the arm base.",
-            "The workspace, tension and drivetrain checks use the point model (cables meeting at the platform's "
-            "reference point); the suspended-platform check reports the tensions at the real pose."]
+    if has_spread_attachments(design):
+        return ["The platform hangs from separate attachments and is under-constrained: its real pose (tilt and "
+                "shift under the weight of the platform, the arm at its pose and the payload) is the "
+                "least-potential-energy pose for the commanded cable lengths (Carricato and Merlet 2013), checked by "
+                "force and moment balance. The winches are taken to command the lengths of the level platform at "
+                "the nominal position; the arm's joints are held; levelling joints re-level the arm base.",
+                "The workspace, tension and drivetrain checks use the point model (cables meeting at the platform's "
+                "reference point); the suspended-platform check reports the tensions at the real pose."]
+    if not _needs_check(design):
+        return ["The platform is taken to stay level: its cables meet it at one point and its centre of mass lies "
+                "on the vertical below that point, so nothing turns it. An offset load (an arm reaching out) would "
+                "swing it like a pendulum; add the [arm] or state [platform] attachments to have the tilt computed."]
+    return ["The cables meet the platform at one point, so they cannot resist a moment: the platform hangs like a "
+            "pendulum from that point and tilts until its centre of mass (with the arm at its pose and the payload) "
+            "lies below it. The point model's positions and tensions still hold; the tilt and the tool-tip error it "
+            "causes are computed in closed form. The platform's turn about the vertical is not held by the cables "
+            "and is taken as zero."]
 
 
 def latex_equations(kind: str) -> dict[str, str]:
