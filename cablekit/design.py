@@ -564,7 +564,7 @@ def _parse_platform(c: _Collector, doc: Mapping, m: int | None) -> Platform | No
         for key in ("inertia", "body_half_size"):
             if key in t:
                 c.add(f"platform.{key}", t[key], "not used by a point platform (kind = 'point'); remove it")
-        if "attachments" in t:  # where the cables really meet it (cablekit.suspended finds the tilt)
+        if "attachments" in t and (m is None or m >= 3):  # where the cables really meet it (cablekit.suspended)
             built = _parse_attachment_list(c, t.get("attachments"), m)
             if built is None:
                 return None
