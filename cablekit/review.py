@@ -672,6 +672,8 @@ def _analysis_parts():
         ("accuracy", "Accuracy: predicted positioning error over the task region", "cablekit.accuracy",
          "positioning accuracy", _accuracy_part),
         ("arm", "Arm: reach and servo loads", "cablekit.arm", "arm reach and servo loads", _arm_part),
+        ("suspended", "Suspended platform: real tilt under the arm and payload", "cablekit.suspended",
+         "the platform's real tilt and the tool-tip error it causes", _suspended_part),
     ]
 
 
@@ -834,6 +836,29 @@ def _arm_part(key, title, mod, design, results, progress) -> Part:
                 quantities=tuple(q), equations=module_equations(mod, design), options={"arm_reach": r})
 
 
+def _suspended_part(key, title, mod, design, results, progress) -> Part:
+    """The real tilt of a point platform (cablekit.suspended): summary, figure, equations."""
+    if not mod._needs_check(design):
+        why = ("a rigid platform is held in orientation by its cables" if design.platform.kind != "point" else
+               "no arm and the centre of mass below the point where the cables meet: nothing tilts the platform")
+        return Part(key=key, title=title, module=mod.__name__, available=True, summary=(f"Not needed: {why}.",))
+    res = results.get("suspended")
+    if res is None:
+        progress("  real platform tilt over the arm's reach")
+        res = mod.design_poses(design)
+    k = res.worst
+    q = [Quantity("suspended_tilt", "largest real platform tilt (arm reaching out)", math.degrees(float(res.tilt.max())),
+                  math.degrees(float(res.tilt.max())), "deg", source="cablekit.suspended.design_poses"),
+         Quantity("suspended_tip_error", "largest tool-tip error from that tilt", 1e3 * float(res.tip_error[k]),
+                  1e3 * float(res.tip_error[k]), "mm", source="cablekit.suspended.design_poses")]
+    return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(res.summary()),
+                figures=(("Real platform tilt and tool-tip error at the poses checked", res.figure()),),
+                quantities=tuple(q), equations=module_equations(mod, design),
+                not_checked=("The real tilt is found at the task box's centre, corners and home, with the arm at its "
+                             "home, limits and 45 deg steps; moves between task targets are not checked for tilt.",),
+                options={"suspended": res})
+
+
 # ======================================================================================
 # building the sheet
 # ======================================================================================
@@ -853,7 +878,7 @@ def build_review(design, *, source_path=None, date: str | None = None, results: 
     results : mapping, optional
         Result objects already computed for this design, by the option name
         :func:`~cablekit.checks.run_all` passes them under (``"workspace"``, ``"drive"``,
-        ``"accuracy"``, ``"arm_reach"``); reused instead of computed again (the dashboard
+        ``"accuracy"``, ``"arm_reach"``, ``"suspended"``); reused instead of computed again (the dashboard
         passes what it already shows).  They must belong to ``design``.
     progress : callable, optional
         Called with a short text before each long step.

@@ -667,7 +667,7 @@ def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[C
         value = 1e3 * float(res.tip_error[k])
         margin, status = judge(value, 1e3 * req, upper=True, warn_limit=SUSPENDED_WARN_SHARE * 1e3 * req)
         out.append(Check(key="suspended_tip_error", subject="suspended platform",
-                         title="tool-tip error from the platform's real tilt (arm and payload weight)",
+                         title="tool-tip error from the real platform tilt (arm and payload weight)",
                          value=value, limit=1e3 * req, unit="mm", margin=margin, status=status,
                          source=f"required_accuracy in the design's [errors] table; warn above "
                                 f"{SUSPENDED_WARN_SHARE:.0%} of it: common practice, no source",
@@ -678,7 +678,7 @@ def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[C
         value = math.degrees(float(res.tilt[i]))
         margin, status = judge(value, math.degrees(lim), upper=True)
         out.append(Check(key="suspended_tilt", subject="suspended platform",
-                         title="platform tilt under the arm's and payload's weight", value=value,
+                         title="platform tilt under the arm and payload weight", value=value,
                          limit=math.degrees(lim), unit="deg", margin=margin, status=status,
                          source=PRACTICE["platform_tilt_max"].source,
                          detail=f"worst at {res.labels[i]} (no required_accuracy in [errors] to judge the tool tip); "
@@ -710,7 +710,7 @@ def design_assumptions(design, **options) -> list[str]:
                 "reference point); the suspended-platform check reports the tensions at the real pose."]
     if not _needs_check(design):
         return ["The platform is taken to stay level: its cables meet it at one point and its centre of mass lies "
-                "on the vertical below that point, so nothing turns it. An offset load (an arm reaching out) would "
+                "on the vertical through that point (not above it), so nothing turns it. An offset load (an arm reaching out) would "
                 "swing it like a pendulum; add the [arm] or state [platform] attachments to have the tilt computed."]
     return ["The cables meet the platform at one point, so they cannot resist a moment: the platform hangs like a "
             "pendulum from that point and tilts until its centre of mass (with the arm at its pose and the payload) "
@@ -719,13 +719,19 @@ def design_assumptions(design, **options) -> list[str]:
             "and is taken as zero."]
 
 
-def latex_equations(kind: str) -> dict[str, str]:
-    """The suspended-platform equations (point platforms with spread attachments)."""
-    if kind != "point":
+def latex_equations(design) -> dict[str, str]:
+    """The equations of the real pose of a point platform (empty for a rigid one)."""
+    if design.platform.kind != "point":
         return {}
+    if has_spread_attachments(design):
+        return {
+            "real pose (least potential energy)": r"\min_{\mathbf{p},R}\ -M\,\mathbf{g}\cdot(\mathbf{p} + "
+                                                  r"R\,\mathbf{c})\quad \text{s.t.}\quad \lVert \mathbf{a}_i - "
+                                                  r"\mathbf{p} - R\,\mathbf{b}_i \rVert \le L_i",
+            "commanded lengths (level platform)": r"L_i = \lVert \mathbf{a}_i - \mathbf{p}_c - \mathbf{b}_i \rVert",
+            "check: force and moment balance": r"W\,\mathbf{t} + \mathbf{w} = \mathbf{0},\quad \mathbf{t} \ge 0",
+        }
     return {
-        "real pose (least potential energy)": r"\min_{\mathbf{p},R}\ -M\,\mathbf{g}\cdot(\mathbf{p} + R\,\mathbf{c})"
-                                              r"\quad \text{s.t.}\quad \lVert \mathbf{a}_i - \mathbf{p} - R\,"
-                                              r"\mathbf{b}_i \rVert \le L_i",
-        "commanded lengths (level platform)": r"L_i = \lVert \mathbf{a}_i - \mathbf{p}_c - \mathbf{b}_i \rVert",
+        "real pose (a pendulum about the meeting point)": r"R\,(\mathbf{c} - \mathbf{b}_0) \parallel \mathbf{g}",
+        "tool-tip error": r"e = \lVert \mathbf{p}_{tip}(R) - \mathbf{p}_{tip}(I) \rVert",
     }
