@@ -9,8 +9,10 @@ second-order test, and reports the tilt, the shift and the tool-tip error it cau
 
 Model
 -----
-* The controller commands the lengths of the **level** platform at its nominal position
-  ``p_c`` with the attachments where the design states them: ``L_i = |a_i - p_c - b_i|``.
+* The winches hold the lengths of the **point model** at the nominal position ``p_c``,
+  ``L_i = |a_i - p_c|``, as cablekit's kinematics and the task plan write them (or, with
+  ``commanded="level"``, those of the level platform with its attachments,
+  ``L_i = |a_i - p_c - b_i|``).
 * The platform, payload and arm (joints fixed) are one rigid body of mass ``M`` with centre of
   mass ``c`` in the platform frame.  The equilibrium pose ``(p, R)`` minimises the height of
   the centre of mass, ``V = -M g . (p + R c)``, subject to ``|a_i - p - R b_i| <= L_i`` (a
@@ -450,8 +452,8 @@ def meeting_attachments(design) -> np.ndarray:
     return b if b.size else np.zeros((design.m, 3))
 
 
-def suspended_poses(design, positions, *, joints=None, holding=False, labels=None, starts: int = 5,
-                    max_level_iter: int = 30) -> SuspendedResult:
+def suspended_poses(design, positions, *, joints=None, holding=False, labels=None, commanded: str = "point",
+                    starts: int = 5, max_level_iter: int = 30) -> SuspendedResult:
     """The real pose of the platform at each commanded position, the arm at ``joints``.
 
     Parameters
@@ -462,6 +464,9 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
         levelling joints (if any) are solved for the tilt found, within their limits.
     holding : bool or (N,) the gripper holds the payload.
     labels : names of the poses for the summary.
+    commanded : the cable lengths the winches hold: ``"point"`` (``|a_i - p|``, the point model,
+        as cablekit's kinematics and the task plan write them) or ``"level"``
+        (``|a_i - p - b_i|``, a controller that knows the attachments and aims the level platform).
 
     Notes
     -----
@@ -486,7 +491,9 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
     labels = tuple(labels) if labels is not None else tuple(f"pose {k + 1}" for k in range(N))
     a = design.exits
     up = -np.asarray(design.frame.gravity_direction, float)
-    L = level_lengths(a, b, P)
+    if commanded not in ("point", "level"):
+        raise ValueError(f"commanded must be 'point' or 'level', got {commanded!r}")
+    L = level_lengths(a, b if commanded == "level" else np.zeros_like(b), P)
     lev = list(arm.levelling) if arm is not None else []
 
     def levelled(q, R):
@@ -508,7 +515,8 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
                 eq = hanging_equilibrium(a, b, L[k], mass=M, center_of_mass=c, gravity=design.gravity, guess=P[k],
                                          starts=starts)
             else:
-                eq = pendulum_equilibrium(a, b[0], P[k] + b[0], mass=M, center_of_mass=c, gravity=design.gravity)
+                O = P[k] + b[0] if commanded == "level" else P[k]  # where the lengths put the meeting point
+                eq = pendulum_equilibrium(a, b[0], O, mass=M, center_of_mass=c, gravity=design.gravity)
             moved = float(np.linalg.norm(eq.rotation - R))
             R = eq.rotation
             if moved < 1e-9:
@@ -667,7 +675,7 @@ def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[C
         value = 1e3 * float(res.tip_error[k])
         margin, status = judge(value, 1e3 * req, upper=True, warn_limit=SUSPENDED_WARN_SHARE * 1e3 * req)
         out.append(Check(key="suspended_tip_error", subject="suspended platform",
-                         title="tool-tip error from the real platform tilt (arm and payload weight)",
+                         title="tool-tip error at the real platform pose (tilt and shift)",
                          value=value, limit=1e3 * req, unit="mm", margin=margin, status=status,
                          source=f"required_accuracy in the design's [errors] table; warn above "
                                 f"{SUSPENDED_WARN_SHARE:.0%} of it: common practice, no source",
@@ -704,8 +712,9 @@ def design_assumptions(design, **options) -> list[str]:
         return ["The platform hangs from separate attachments and is under-constrained: its real pose (tilt and "
                 "shift under the weight of the platform, the arm at its pose and the payload) is the "
                 "least-potential-energy pose for the commanded cable lengths (Carricato and Merlet 2013), checked by "
-                "force and moment balance. The winches are taken to command the lengths of the level platform at "
-                "the nominal position; the arm's joints are held; levelling joints re-level the arm base.",
+                "force and moment balance. The winches are taken to hold the point model's lengths to the nominal "
+                "position (as the task plan writes them); the arm's joints are held; levelling joints re-level the "
+                "arm base (the controller is taken to know the platform's tilt).",
                 "The workspace, tension and drivetrain checks use the point model (cables meeting at the platform's "
                 "reference point); the suspended-platform check reports the tensions at the real pose."]
     if not _needs_check(design):
@@ -728,7 +737,7 @@ def latex_equations(design) -> dict[str, str]:
             "real pose (least potential energy)": r"\min_{\mathbf{p},R}\ -M\,\mathbf{g}\cdot(\mathbf{p} + "
                                                   r"R\,\mathbf{c})\quad \text{s.t.}\quad \lVert \mathbf{a}_i - "
                                                   r"\mathbf{p} - R\,\mathbf{b}_i \rVert \le L_i",
-            "commanded lengths (level platform)": r"L_i = \lVert \mathbf{a}_i - \mathbf{p}_c - \mathbf{b}_i \rVert",
+            "commanded lengths (point model)": r"L_i = \lVert \mathbf{a}_i - \mathbf{p}_c \rVert",
             "check: force and moment balance": r"W\,\mathbf{t} + \mathbf{w} = \mathbf{0},\quad \mathbf{t} \ge 0",
         }
     return {
