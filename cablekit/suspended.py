@@ -67,7 +67,7 @@ __all__ = [
     "latex_equations",
 ]
 
-COINCIDE_TOL = 1e-4  # attachments closer than this [m] are taken to coincide (point model)
+COINCIDE_TOL = 1e-4  # attachments closer than this [m] are taken to coincide (one meeting point)
 # warn when the tilt's tool-tip error alone uses more than half the required accuracy: the
 # rest of the error budget needs the other half (common practice, no source)
 SUSPENDED_WARN_SHARE = 0.5
@@ -113,6 +113,8 @@ class BodyEquilibrium:
     definite; min_curvature : its least eigenvalue [m] (per unit weight); slack : (m,) cables
     shorter than their commanded length (not pulling); height : centre-of-mass height along
     up [m]; starts : optimiser starts run; agree : starts that reached the same least height.
+    ``stable`` is False as well when the result does not balance the load with pulling cables
+    (residual above 1e-6 of the weight, or a negative tension): no equilibrium was found.
     """
 
     position: np.ndarray
@@ -233,8 +235,10 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
         t[taut] = np.linalg.lstsq(W[:, taut], -w_ext, rcond=None)[0]
     residual = float(np.linalg.norm(W @ t + w_ext) / (mass * gn))
     curvature = _reduced_curvature(a, b, L, c, up, p, R, t / (mass * gn), taut)
+    # an equilibrium only if the load balances with pulling cables; stable if the curvature is positive
+    balanced = residual < 1e-6 and bool(np.all(t >= -1e-9 * mass * gn))
     return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual,
-                           stable=bool(curvature > 1e-9), min_curvature=curvature, slack=slack,
+                           stable=bool(balanced and curvature > 1e-9), min_curvature=curvature, slack=slack,
                            height=best_h, starts=len(found), agree=int(agree))
 
 

@@ -268,3 +268,30 @@ def test_task_check_fails_a_target_the_tilt_puts_off_target(tmp_path):
     fixed = check_task(after, read_task(after, task))
     assert fixed.ok and math.degrees(fixed.suspended.tilt.max()) > 3.0
     assert fixed.suspended.tip_error.max() < 1e-3
+
+
+def test_a_cable_going_slack_at_the_real_pose_fails():
+    # a 300 mm ring and a 2 kg load 0.5 m off the axis: at the real (tilted) pose one cable
+    # carries nothing although the point model holds every cable taut (cables only pull)
+    text = GREENHOUSE_TEXT.split("# The servo arm under the platform")[0] + GREENHOUSE_TEXT[GREENHOUSE_TEXT.index("[errors]"):]
+    ring = 'attachments = ["-0.2598, -0.15, 0 m", "0.2598, -0.15, 0 m", "0, 0.3, 0 m"]'
+    text = text.replace(ONE_SHACKLE, ring).replace('name = "seedling tray"\nmass = "0.5 kg"',
+                                                  'name = "seedling tray"\nmass = "2 kg"\ncenter_of_mass = "0.5, 0, 0 m"')
+    checks = {c.key: c for c in design_checks(loads_design(text))}
+    assert checks["suspended_taut"].status == "fail" and "goes slack" in checks["suspended_taut"].detail
+    assert checks["suspended_tip_error"].status == "fail"
+
+
+def test_left_jacobian_of_the_rotation_vector():
+    # Exp(w + dw) = Exp(J_l(w) dw) Exp(w) to first order (Barfoot, State Estimation for
+    # Robotics, 2017, sec. 7.1), checked by central differences
+    from cablekit.suspended import _exp, _left_jacobian
+
+    w = np.array([0.3, -0.7, 0.4])
+    h = 1e-6
+    J = _left_jacobian(w)
+    for k in range(3):
+        dw = np.eye(3)[k] * h
+        dR = (_exp(w + dw) - _exp(w - dw)) / (2 * h)  # = [J_l e_k]x Exp(w)
+        omega = dR @ _exp(w).T
+        np.testing.assert_allclose([omega[2, 1], omega[0, 2], omega[1, 0]], J[:, k], atol=1e-8)  # FD error ~h^2
