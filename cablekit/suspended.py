@@ -268,8 +268,9 @@ def pendulum_equilibrium(exits, meeting, point, *, mass: float, center_of_mass, 
     Forces through one point cannot resist a moment: the body turns about the meeting point
     until its centre of mass lies on the vertical below it (a body hanging from one point,
     statics).  ``R`` is the least rotation doing that; the turn about the vertical is free
-    (not held by the cables) and taken as zero.  Tensions: ``U t = -M g`` (least-norm when
-    more than three cables share the load).
+    (not held by the cables) and taken as zero.  Tensions: ``U t = -M g``; with more than three
+    cables the least-norm solution, not checked for slack here (the point model's tension
+    checks own that).
     """
     a = np.asarray(exits, float)
     b0 = np.asarray(meeting, float)
@@ -291,7 +292,8 @@ def pendulum_equilibrium(exits, meeting, point, *, mass: float, center_of_mass, 
     residual = float(np.linalg.norm(W @ t + w_ext) / (mass * gn))
     up = -g / gn
     return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual, stable=lever > 1e-12,
-                           min_curvature=lever, slack=t < 0, height=float(up @ (p + R @ c)), starts=1, agree=1)
+                           min_curvature=lever, slack=(t < 0) if len(t) == 3 else np.zeros(len(t), bool),
+                           height=float(up @ (p + R @ c)), starts=1, agree=1)
 
 
 def _reduced_curvature(a, b, L, c, up, p, R, lam, taut, h: float = 1e-4) -> float:
@@ -361,7 +363,7 @@ def _body(design, joints, holding) -> tuple[float, np.ndarray]:
     return M, (m[:, None] * r).sum(axis=0) / M
 
 
-def _tip(design, arm, position, R, joints):
+def _tip(arm, position, R, joints):
     from .arm import forward_kinematics, mount_rotation
 
     fk = forward_kinematics(arm, np.asarray(joints, float)[None])
@@ -370,14 +372,15 @@ def _tip(design, arm, position, R, joints):
 
 @dataclass(frozen=True)
 class SuspendedResult:
-    """The real poses of a suspended platform with spread attachments, per commanded pose.
+    """The real poses of a point platform, per commanded pose.
 
     labels : (N,) what each pose is; commanded : (N, 3) nominal platform position [m];
     joints : (N, n_joints) arm joints (levelling solved for the tilt) or (N, 0); holding : (N,)
     payload held; lengths : (N, m) commanded cable lengths [m]; position : (N, 3) equilibrium
     reference point [m]; rotation : (N, 3, 3); tilt : (N,) angle between the platform's up axis
-    and the world's [rad]; shift : (N,) reference point's move [m]; tip_nominal, tip_actual : (N, 3) tool tip of the
-    level and the real platform [m] (NaN without an arm); tip_error : (N,) [m] (without an arm:
+    and the world's [rad]; shift : (N,) reference point's move [m]; tip_nominal, tip_actual :
+    (N, 3) tool tip of the level and the real platform [m] (NaN without an arm); tip_error :
+    (N,) [m] (without an arm:
     the reference point's shift); tensions : (N, m) [N]; slack : (N, m); residual : (N,) force
     and moment balance residual per unit weight; stable : (N,); attachments : (m, 3) [m];
     spread : the attachments are separate (False: they meet at one point, a pendulum).
@@ -437,9 +440,11 @@ class SuspendedResult:
         from plotly.subplots import make_subplots
 
         fig = make_subplots(rows=1, cols=2, subplot_titles=("platform tilt [deg]", "tool-tip error [mm]"))
-        x = list(self.labels)
-        fig.add_trace(go.Bar(x=x, y=np.degrees(self.tilt), name="tilt", marker_color="#1f77b4"), row=1, col=1)
-        fig.add_trace(go.Bar(x=x, y=1e3 * self.tip_error, name="tip error", marker_color="#d62728"), row=1, col=2)
+        x = np.arange(1, len(self.labels) + 1)  # pose numbers (labels may repeat); the label on hover
+        for col, y, name, colour in ((1, np.degrees(self.tilt), "tilt [deg]", "#1f77b4"),
+                                     (2, 1e3 * self.tip_error, "tip error [mm]", "#d62728")):
+            fig.add_trace(go.Bar(x=x, y=y, name=name, marker_color=colour, hovertext=list(self.labels)), row=1, col=col)
+            fig.update_xaxes(title_text="pose", row=1, col=col)
         req = _required_accuracy(self.design)
         if req is not None:
             fig.add_hline(y=1e3 * req, line_dash="dash", line_color="#333333", row=1, col=2,
@@ -531,8 +536,8 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
             out[key].append(v)
         if arm is not None:
             q_level = levelled(J[k], np.eye(3)) if lev else J[k]
-            out["tip_n"].append(_tip(design, arm, P[k], np.eye(3), q_level))
-            out["tip_a"].append(_tip(design, arm, eq.position, eq.rotation, J[k]))
+            out["tip_n"].append(_tip(arm, P[k], np.eye(3), q_level))
+            out["tip_a"].append(_tip(arm, eq.position, eq.rotation, J[k]))
         else:
             out["tip_n"].append(np.full(3, np.nan))
             out["tip_a"].append(np.full(3, np.nan))
