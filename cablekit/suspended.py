@@ -528,7 +528,7 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
                 eq = pendulum_equilibrium(a, b[0], O, mass=M, center_of_mass=c, gravity=design.gravity)
             moved = float(np.linalg.norm(eq.rotation - R))
             R = eq.rotation
-            if moved < 1e-9:
+            if moved < 1e-8:  # rad: the tilt has settled
                 break
         J[k] = q
         for key, v in (("position", eq.position), ("rotation", eq.rotation), ("tensions", eq.tensions),
@@ -581,10 +581,11 @@ def _joint_samples(arm, *, cap: int = 2000) -> tuple[np.ndarray, list[str]]:
     return np.array(rows), names
 
 
-def design_poses(design, *, top: int = 4, starts: int = 3) -> SuspendedResult:
+def design_poses(design, *, top: int = 6, starts: int = 3) -> SuspendedResult:
     """The design-level sweep: the home position and the task box centre with the arm at its
-    home and at the joint sets that move the centre of mass furthest sideways (payload held
-    and not), then the worst of those at the task box's corners."""
+    home and at the ``top`` joint sets (of :func:`_joint_samples`, payload held and not) that
+    move the centre of mass furthest off the vertical through the attachments' centre, then
+    the worst of those at the task box's corners."""
     arm = design.sections.get("arm")
     home = np.asarray(design.home_pose[:3], float)
     places = [("home", home)]
@@ -598,6 +599,7 @@ def design_poses(design, *, top: int = 4, starts: int = 3) -> SuspendedResult:
     elif t.points:
         places += [(f"task point {k + 1}", np.asarray(p, float)) for k, p in enumerate(t.points[:8])]
     up = -np.asarray(design.frame.gravity_direction, float)
+    b_mid = meeting_attachments(design).mean(axis=0)
     cases = [(None, "no arm", False)]
     if arm is not None:
         rows, names = _joint_samples(arm)
@@ -605,7 +607,8 @@ def design_poses(design, *, top: int = 4, starts: int = 3) -> SuspendedResult:
         for q, name in zip(rows, names):
             for hold in (False, True):
                 M, c = _body(design, q, hold)
-                lever = float(np.linalg.norm(c - (c @ up) * up))
+                v = c - b_mid
+                lever = float(np.linalg.norm(v - (v @ up) * up))
                 scored.append((lever, q, name + (", payload held" if hold else ""), hold))
         scored.sort(key=lambda s: -s[0])
         cases = [(rows[0], names[0] + ", payload held", True)] + [(q, n, h) for _, q, n, h in scored[:top]]
