@@ -295,3 +295,12 @@ def test_left_jacobian_of_the_rotation_vector():
         dR = (_exp(w + dw) - _exp(w - dw)) / (2 * h)  # = [J_l e_k]x Exp(w)
         omega = dR @ _exp(w).T
         np.testing.assert_allclose([omega[2, 1], omega[0, 2], omega[1, 0]], J[:, k], atol=1e-8)  # FD error ~h^2
+
+
+def test_changing_the_winch_count_keeps_one_shackle_and_refuses_spread_eyes():
+    from cablekit.widgets.edits import EditError, with_winch_count
+
+    four = with_winch_count(_greenhouse(), 4)
+    assert four.m == 4 and four.platform.built_attachments == ((0.0, 0.0, 0.0),) * 4
+    with pytest.raises(EditError, match="separate attachments"):
+        with_winch_count(_greenhouse(GREENHOUSE_TEXT.replace(ONE_SHACKLE, RING)), 4)
