@@ -419,11 +419,11 @@ class SuspendedResult:
                  f"{'s' if len(self.labels) != 1 else ''}",
                  f"  largest tilt {math.degrees(float(np.max(self.tilt))):.2f} deg, largest tool-tip error "
                  f"{1e3 * float(self.tip_error[k]):.1f} mm at {self.labels[k]}",
-                 "  pose                               tilt [deg]  shift [mm]  tip error [mm]  tensions [N]"]
+                 "  tilt [deg]  shift [mm]  tip error [mm]  tensions [N]          pose"]
         for i, lab in enumerate(self.labels):
             ten = ", ".join(f"{t:.1f}" + (" slack" if s else "") for t, s in zip(self.tensions[i], self.slack[i]))
-            lines.append(f"  {lab[:34]:<34} {math.degrees(self.tilt[i]):10.2f}  {1e3 * self.shift[i]:10.1f}  "
-                         f"{1e3 * self.tip_error[i]:14.1f}  {ten}")
+            lines.append(f"  {math.degrees(self.tilt[i]):10.2f}  {1e3 * self.shift[i]:10.1f}  "
+                         f"{1e3 * self.tip_error[i]:14.1f}  {ten:<21} {lab}")
         if np.any(self.slack):
             i = int(np.argmax(self.slack.any(axis=1)))
             names = [n for n, s in zip(d.cable_names, self.slack[i]) if s]
