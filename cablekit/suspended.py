@@ -137,6 +137,22 @@ def level_lengths(exits, attachments, positions) -> np.ndarray:
     return np.linalg.norm(a[None] - p[:, None, :] - b[None], axis=2)
 
 
+def _structure(a, p, r) -> np.ndarray:
+    """Structure matrix (6, m) ``[u_i; r_i x u_i]`` of cables from exits ``a`` (m, 3) to the
+    attachments ``p + r_i`` (``r`` (m, 3) in world axes) [m] (DEVELOPERS.md sign convention)."""
+    l = a - p - r
+    u = l / np.linalg.norm(l, axis=1, keepdims=True)
+    return np.vstack([u.T, np.cross(r, u).T])
+
+
+def _unbalance(W, t, mass: float, g, c_world) -> float:
+    """``|W t + w_ext|`` per unit weight, ``w_ext`` the weight at ``c_world`` (about the
+    reference point) [-]."""
+    weight = mass * np.asarray(g, float)
+    w_ext = np.concatenate([weight, np.cross(c_world, weight)])
+    return float(np.linalg.norm(W @ t + w_ext) / np.linalg.norm(weight))
+
+
 def _starts(p0, lengths, count: int, rng) -> list[np.ndarray]:
     """Start points (p, w): the level nominal pose, then tilted and shifted ones."""
     out = [np.concatenate([p0, np.zeros(3)])]
@@ -202,10 +218,8 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
 
     def cons_jac(x):
         p, R = split(x)
-        r = b @ R.T
-        l = a - p - r
-        u = l / np.linalg.norm(l, axis=1, keepdims=True)
-        return np.hstack([u, np.cross(r, u) @ _left_jacobian(x[3:])])
+        W = _structure(a, p, b @ R.T)
+        return np.hstack([W[:3].T, W[3:].T @ _left_jacobian(x[3:])])
 
     rng = np.random.default_rng(seed)
     found = []
@@ -222,10 +236,7 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
     agree = sum(abs(h - best_h) < 1e-7 for h, _ in found)
     p, R = split(x)
     # force and moment balance, independent of the optimiser's multipliers
-    r = b @ R.T
-    l = a - p - r
-    u = l / np.linalg.norm(l, axis=1, keepdims=True)
-    W = np.vstack([u.T, np.cross(r, u).T])  # (6, m)
+    W = _structure(a, p, b @ R.T)  # (6, m)
     weight = mass * g
     w_ext = np.concatenate([weight, np.cross(R @ c, weight)])
     slack = cons(x) > 1e-7 * float(np.max(L))
@@ -233,8 +244,8 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
     taut = ~slack
     if taut.any():
         t[taut] = np.linalg.lstsq(W[:, taut], -w_ext, rcond=None)[0]
-    residual = float(np.linalg.norm(W @ t + w_ext) / (mass * gn))
-    curvature = _reduced_curvature(a, b, L, c, up, p, R, t / (mass * gn), taut)
+    residual = _unbalance(W, t, mass, g, R @ c)
+    curvature = _reduced_curvature(a, b, L, c, up, p, R, t / (mass * gn), W[:, taut].T)
     # an equilibrium only if the load balances with pulling cables; stable if the curvature is positive
     balanced = residual < 1e-6 and bool(np.all(t >= -1e-9 * mass * gn))
     return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual,
@@ -282,26 +293,22 @@ def pendulum_equilibrium(exits, meeting, point, *, mass: float, center_of_mass, 
     lever = float(np.linalg.norm(v))
     R = _rotation_between(v / lever, g / gn) if lever > 1e-12 else np.eye(3)
     p = O - R @ b0
-    r = np.broadcast_to(R @ b0, a.shape)
-    l = a - p - r
-    u = l / np.linalg.norm(l, axis=1, keepdims=True)
-    weight = mass * g
-    t = np.linalg.lstsq(u.T, -weight, rcond=None)[0]
-    W = np.vstack([u.T, np.cross(r, u).T])
-    w_ext = np.concatenate([weight, np.cross(R @ c, weight)])
-    residual = float(np.linalg.norm(W @ t + w_ext) / (mass * gn))
+    W = _structure(a, p, np.broadcast_to(R @ b0, a.shape))
+    t = np.linalg.lstsq(W[:3], -mass * g, rcond=None)[0]
+    residual = _unbalance(W, t, mass, g, R @ c)
     up = -g / gn
     return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual, stable=lever > 1e-12,
                            min_curvature=lever, slack=(t < 0) if len(t) == 3 else np.zeros(len(t), bool),
                            height=float(up @ (p + R @ c)), starts=1, agree=1)
 
 
-def _reduced_curvature(a, b, L, c, up, p, R, lam, taut, h: float = 1e-4) -> float:
+def _reduced_curvature(a, b, L, c, up, p, R, lam, G, h: float = 1e-4) -> float:
     """Least eigenvalue of the Lagrangian's Hessian on the taut cables' tangent space [m].
 
     Local coordinates ``(dp, dw)`` with ``R' = Exp(dw) R``; Hessian by central differences of
     ``Lag = e_up . (p + R c) - sum lam_i (L_i - |a_i - p - R b_i|)``; the tangent space is the
-    null space of the taut cables' length gradients (Nocedal and Wright 2006, thm. 12.6).
+    null space of the taut cables' length gradients ``G`` (k, 6) (Nocedal and Wright 2006,
+    thm. 12.6).
     """
     def lag(x):
         Rx = _exp(x[3:]) @ R
@@ -314,10 +321,6 @@ def _reduced_curvature(a, b, L, c, up, p, R, lam, taut, h: float = 1e-4) -> floa
     for i in range(n):
         for j in range(i, n):
             H[i, j] = H[j, i] = (lag(E[i] + E[j]) - lag(E[i] - E[j]) - lag(-E[i] + E[j]) + lag(-E[i] - E[j])) / (4 * h * h)
-    r = b @ R.T
-    l = a - p - r
-    u = l / np.linalg.norm(l, axis=1, keepdims=True)
-    G = np.hstack([u, np.cross(r, u)])[taut]  # gradients of the taut cables' constraints
     if len(G):
         _, s, Vt = np.linalg.svd(G)
         rank = int(np.sum(s > 1e-9 * s[0]))
