@@ -238,7 +238,8 @@ class TaskReport:
     sample_tips: np.ndarray
     sample_platform: np.ndarray
     interference_method: str
-    suspended: object = None  # cablekit.suspended.SuspendedResult at the targets, or None
+    suspended: object = None  # cablekit.suspended.SuspendedResult at the targets' samples, or None
+    suspended_rows: np.ndarray | None = None  # (K,) row of ``suspended`` for each target (after the gripper)
 
     @property
     def ok(self) -> bool:
@@ -469,8 +470,9 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
         else:
             reasons.append(None)
     # the platform's real tilt at the targets (point platforms: cablekit.suspended)
-    susp = _target_tilt(design, poses, q, holding, np.array(kinds)[step_of] == "target",
-                        [titles[i] for i in step_of], reasons, progress)
+    step_kind = np.array(kinds)[step_of]
+    susp = _target_tilt(design, poses, q, holding, step_kind == "target", [titles[i] for i in step_of], reasons,
+                        progress)
     # times
     L = cable_lengths(design, poses)
     v_cable = cable_speed_limits(design)
@@ -500,7 +502,9 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
     return TaskReport(design=design, targets=targets, platform_poses=poses[last], joints=q[last], lengths=L[last],
                       counts=counts, tensions=ten.tensions[last], margin=ten.margin[last], servo_use=use[last],
                       steps=tuple(steps), sample_tips=tips, sample_platform=poses[:, :3],
-                      interference_method="segment vs box (cablekit.workspace)", suspended=susp)
+                      interference_method="segment vs box (cablekit.workspace)", suspended=susp,
+                      suspended_rows=None if susp is None else np.searchsorted(np.flatnonzero(step_kind == "target"),
+                                                                              last))
 
 
 def _target_tilt(design, poses, q, holding, at_target, sample_titles, reasons, progress):
@@ -581,6 +585,9 @@ def write_plan(report: TaskReport, path):
     header += [f"length {n} [m]" for n in names] + [f"counts {n}" for n in names]
     header += [f"tension {n} [N]" for n in names]
     header += ["margin [N]", "servo use [%]", "move time [s]", "move limited by", "move check", "target check"]
+    tilted = report.suspended is not None
+    if tilted:  # the real tilt of a point platform (cablekit.suspended)
+        header += ["platform tilt [deg]", "tilt tip error [mm]"]
     moves = {s.target: s for s in report.steps if s.kind == "move"}
     tsteps = {s.target: s for s in report.steps if s.kind == "target"}
     rows = []
@@ -597,6 +604,9 @@ def write_plan(report: TaskReport, path):
         row += [float(report.margin[k]), float(100 * report.servo_use[k].max()),
                 float(mv.time) if mv else 0.0, mv.limited_by if mv else "",
                 ("ok" if mv.ok else mv.reason) if mv else "", "ok" if tsteps[k].ok else tsteps[k].reason]
+        if tilted:
+            i = int(report.suspended_rows[k])
+            row += [float(np.degrees(report.suspended.tilt[i])), float(1e3 * report.suspended.tip_error[i])]
         rows.append(row)
     f = report.first_failure
     comment = (f"cablekit task plan: {d.meta.name}\n"

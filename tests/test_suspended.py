@@ -304,3 +304,20 @@ def test_changing_the_winch_count_keeps_one_shackle_and_refuses_spread_eyes():
     assert four.m == 4 and four.platform.built_attachments == ((0.0, 0.0, 0.0),) * 4
     with pytest.raises(EditError, match="separate attachments"):
         with_winch_count(_greenhouse(GREENHOUSE_TEXT.replace(ONE_SHACKLE, RING)), 4)
+
+
+def test_the_plan_lists_the_real_tilt_per_target(tmp_path):
+    import csv
+
+    from cablekit.task import check_task, read_task, write_plan
+
+    d = _greenhouse(_without_levelling(GREENHOUSE_TEXT))
+    report = check_task(d, read_task(d, EXAMPLES / "greenhouse_task.csv"))
+    rows = list(csv.reader(line for line in write_plan(report, tmp_path / "plan.csv").read_text().splitlines()
+                           if not line.startswith("#")))
+    col = rows[0].index("platform tilt [deg]")
+    k = [r[1] for r in rows[1:]].index("turn to shelf")
+    # the same pose worked in test_point_platform_with_an_arm_tilts_about_ten_degrees_and_fails
+    one = suspended_poses(d, report.platform_poses[k, :3], joints=report.joints[k], holding=True)
+    assert float(rows[1 + k][col]) == pytest.approx(math.degrees(one.tilt[0]), rel=1e-9)
+    assert float(rows[1 + k][col + 1]) == pytest.approx(1e3 * one.tip_error[0], rel=1e-9)
