@@ -1145,6 +1145,9 @@ def _render_inputs(design) -> str:
     if p.kind == "rigid":
         out.append(_table(["cable", "attachment in the platform frame [mm]"],
                           [[_h(n), _vec(a, "mm")] for n, a in zip(d.cable_names, p.attachments)]))
+    elif p.built_attachments:  # a point platform's stated attachments (cablekit.suspended)
+        out.append(_table(["cable", "attachment as built, platform frame [mm]"],
+                          [[_h(n), _vec(a, "mm")] for n, a in zip(d.cable_names, p.built_attachments)]))
     c = d.cable
     out.append("<h3>Cable</h3>")
     out.append(_kv([("construction", _h(c.construction or "(not given)")), ("diameter", _si(c.diameter, "mm")),
