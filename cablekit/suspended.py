@@ -253,6 +253,14 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
                            height=best_h, starts=len(found), agree=int(agree))
 
 
+def _no_pose(m: int) -> BodyEquilibrium:
+    """The stand-in when no equilibrium exists: NaN pose, not stable (every check on it fails)."""
+    nan3 = np.full(3, np.nan)
+    return BodyEquilibrium(position=nan3, rotation=np.full((3, 3), np.nan), tensions=np.full(m, np.nan),
+                           residual=math.inf, stable=False, min_curvature=math.nan, slack=np.zeros(m, bool),
+                           height=math.nan, starts=0, agree=0)
+
+
 def _rotation_between(v, w) -> np.ndarray:
     """The least rotation taking unit vector ``v`` to unit vector ``w`` (no turn about ``w``)."""
     axis = np.cross(v, w)
@@ -411,8 +419,8 @@ class SuspendedResult:
 
     @property
     def worst(self) -> int:
-        """Index of the pose with the largest tool-tip error."""
-        return int(np.nanargmax(self.tip_error))
+        """Index of the pose with the largest tool-tip error (a pose not found counts as worst)."""
+        return int(np.argmax(np.where(np.isnan(self.tip_error), np.inf, self.tip_error)))
 
     def summary(self) -> list[str]:
         d = self.design
@@ -524,8 +532,12 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
                 q = levelled(q, R)
             M, c = _body(design, q, bool(hold[k]))
             if spread:
-                eq = hanging_equilibrium(a, b, L[k], mass=M, center_of_mass=c, gravity=design.gravity, guess=P[k],
-                                         starts=starts)
+                try:
+                    eq = hanging_equilibrium(a, b, L[k], mass=M, center_of_mass=c, gravity=design.gravity,
+                                             guess=P[k], starts=starts)
+                except ValueError:  # the lengths cannot hold the body: no pose, judged as a failure
+                    eq = _no_pose(len(a))
+                    break
             else:
                 O = P[k] + b[0] if commanded == "level" else P[k]  # where the lengths put the meeting point
                 eq = pendulum_equilibrium(a, b[0], O, mass=M, center_of_mass=c, gravity=design.gravity)

@@ -321,3 +321,13 @@ def test_the_plan_lists_the_real_tilt_per_target(tmp_path):
     one = suspended_poses(d, report.platform_poses[k, :3], joints=report.joints[k], holding=True)
     assert float(rows[1 + k][col]) == pytest.approx(math.degrees(one.tilt[0]), rel=1e-9)
     assert float(rows[1 + k][col + 1]) == pytest.approx(1e3 * one.tip_error[0], rel=1e-9)
+
+
+def test_attachments_the_cables_cannot_reach_fail_without_a_traceback():
+    # eyes 10 m from the reference point on cables about 2 m long: no pose exists; the check
+    # fails (it must never pass, nor crash the sheet)
+    d = _greenhouse(_without_levelling(GREENHOUSE_TEXT).replace(
+        ONE_SHACKLE, 'attachments = ["-10, 0, 0 m", "10, 0, 0 m", "0, 10, 0 m"]'))
+    checks = {c.key: c for c in design_checks(d)}
+    assert checks["suspended_tip_error"].status == "fail"
+    assert checks["suspended_taut"].status == "fail" and "no stable equilibrium" in checks["suspended_taut"].detail
