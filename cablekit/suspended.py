@@ -1,11 +1,15 @@
-"""The real pose of a suspended platform whose cables meet it at separate points.
+"""The real pose of a point platform: how far the arm's and payload's weight tilt it.
 
-A point platform is modelled with every cable meeting at one point, so nothing can tilt it.
-A real platform hangs from separate attachments ``b_i``: with three cables and six degrees of
-freedom it is **under-constrained** and tilts until the potential energy of everything it
-carries (platform, payload, the arm at its actual pose) is least for the cable lengths the
-winches hold.  This module finds that pose, verifies it by force and moment balance and a
-second-order test, and reports the tilt, the shift and the tool-tip error it causes.
+cablekit's point model lets every cable meet the platform at one point and keeps it level.
+Forces through one point cannot resist a moment, so a real platform hangs from that point
+like a pendulum and turns until its centre of mass lies below it
+(:func:`pendulum_equilibrium`, closed form).  A platform hanging from separate attachments
+``b_i`` is **under-constrained** (three cables, six degrees of freedom) and tilts until the
+potential energy of everything it carries is least for the cable lengths the winches hold
+(:func:`hanging_equilibrium`).  :func:`suspended_poses` finds the pose for a design with the
+arm at given joints, verifies it by force and moment balance (and, for separate attachments,
+a second-order test), and reports the tilt, the shift and the tool-tip error it causes;
+:func:`design_checks` judges the error against the required accuracy.
 
 Model
 -----
@@ -22,7 +26,7 @@ Model
   ``W t + w_ext = 0`` in the least-squares sense (``W`` columns ``[u_i; R b_i x u_i]``,
   ``w_ext = [M g; R c x M g]``) must balance the load (small residual) with ``t >= 0``; the
   Hessian of the Lagrangian reduced to the tangent space of the taut cables must be positive
-  definite (a stable equilibrium, Carricato and Merlet 2013, sec. IV).
+  definite (a stable equilibrium; Carricato and Merlet 2013 discuss this stability test).
 * Arm levelling joints re-level the arm base for the tilt found (repeated until the tilt
   settles), so their effect on the centre of mass is counted.
 
@@ -185,7 +189,7 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
     Notes
     -----
     Minimises ``V = M |g| e_up . (p + R c)`` subject to ``L_i - |a_i - p - R b_i| >= 0`` with
-    ``R = Exp(w)`` (Carricato and Merlet 2013, eq. of the potential-energy formulation), with
+    ``R = Exp(w)`` (the potential-energy formulation of Carricato and Merlet 2013), with
     analytic gradients through the left Jacobian of SO(3).  At the optimum the Lagrange
     multipliers are the tensions; they are recomputed here from ``W t + w_ext = 0``.
     """
