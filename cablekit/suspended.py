@@ -114,7 +114,7 @@ class BodyEquilibrium:
     position : (3,) reference point [m]; rotation : (3, 3) platform to world; tensions : (m,)
     [N] from force and moment balance; residual : unbalanced wrench / weight [-] (force part in
     N per N, moment part in N*m per N, i.e. m); stable : the reduced Hessian is positive
-    definite; min_curvature : its least eigenvalue [m] (per unit weight); slack : (m,) cables
+    semi-definite (neutral directions allowed); min_curvature : its least eigenvalue [m] (per unit weight); slack : (m,) cables
     shorter than their commanded length (not pulling); height : centre-of-mass height along
     up [m]; starts : optimiser starts run; agree : starts that reached the same least height.
     ``stable`` is False as well when the result does not balance the load with pulling cables
@@ -252,8 +252,10 @@ def hanging_equilibrium(exits, attachments, lengths, *, mass: float, center_of_m
     curvature = _reduced_curvature(a, b, L, c, up, p, R, t / (mass * gn), W[:, taut].T)
     # an equilibrium only if the load balances with pulling cables; stable if the curvature is positive
     balanced = residual < 1e-6 and bool(np.all(t >= -1e-9 * mass * gn))
+    # a neutral direction (a turn about the vertical through one suspension point) is not
+    # unstable: the bound is the finite-difference noise of the Hessian (about 1e-8 m)
     return BodyEquilibrium(position=p, rotation=R, tensions=t, residual=residual,
-                           stable=bool(balanced and curvature > 1e-9), min_curvature=curvature, slack=slack,
+                           stable=bool(balanced and curvature > -1e-6), min_curvature=curvature, slack=slack,
                            height=best_h, starts=len(found), agree=int(agree))
 
 

@@ -331,3 +331,29 @@ def test_attachments_the_cables_cannot_reach_fail_without_a_traceback():
     checks = {c.key: c for c in design_checks(d)}
     assert checks["suspended_tip_error"].status == "fail"
     assert checks["suspended_taut"].status == "fail" and "no stable equilibrium" in checks["suspended_taut"].detail
+
+
+def test_second_order_test_tells_a_hanging_body_from_an_inverted_one():
+    # three equal cables from one apex: a body with its centre of mass below the apex sits in a
+    # stable equilibrium, one balanced with it straight above (an inverted pendulum) in an
+    # unstable one.  Tilting by theta about the apex changes the height by -d theta^2 / 2 for a
+    # centre of mass d above it (inverted pendulum, by hand); the tangent vector (dp, dw) of that
+    # tilt has length sqrt(1 + h^2) per radian (the reference point h below the apex moves h),
+    # so the least eigenvalue of the reduced Hessian is -d / (1 + h^2)
+    from cablekit.suspended import _reduced_curvature, _structure
+
+    r = 0.2
+    b = _triangle(r)
+    a = np.tile([0.0, 0.0, 3.0], (3, 1))
+    h = math.sqrt(1.0 - r * r)
+    p = np.array([0.0, 0.0, 3.0 - h])
+    up = np.array([0.0, 0.0, 1.0])
+    W = _structure(a, p, b)
+    for c, sign in (([0.0, 0.0, -0.1], 1.0), ([0.0, 0.0, 1.5], -1.0)):
+        c = np.array(c)
+        t = np.linalg.lstsq(W, -np.concatenate([2 * G, np.cross(c, 2 * G)]), rcond=None)[0]
+        k = _reduced_curvature(a, b, np.ones(3), c, up, p, np.eye(3), t / (2 * 9.80665), W.T)
+        if sign < 0:
+            assert k == pytest.approx(-(c[2] - h) / (1 + h * h), rel=1e-4)  # finite-difference Hessian
+        else:
+            assert abs(k) < 1e-6  # the turn about the vertical through the apex is neutral
