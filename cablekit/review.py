@@ -838,7 +838,7 @@ def _arm_part(key, title, mod, design, results, progress) -> Part:
 
 def _suspended_part(key, title, mod, design, results, progress) -> Part:
     """The real tilt of a point platform (cablekit.suspended): summary, figure, equations."""
-    if not mod._needs_check(design):
+    if not mod.tilt_matters(design):
         why = ("a rigid platform is held in orientation by its cables" if design.platform.kind != "point" else
                "no arm and the centre of mass below the point where the cables meet: nothing tilts the platform")
         return Part(key=key, title=title, module=mod.__name__, available=True, summary=(f"Not needed: {why}.",))

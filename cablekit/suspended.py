@@ -66,6 +66,8 @@ __all__ = [
     "meeting_attachments",
     "suspended_poses",
     "design_poses",
+    "tilt_matters",
+    "required_accuracy",
     "design_checks",
     "design_assumptions",
     "latex_equations",
@@ -462,7 +464,7 @@ class SuspendedResult:
                                      (2, 1e3 * self.tip_error, "tip error [mm]", "#d62728")):
             fig.add_trace(go.Bar(x=x, y=y, name=name, marker_color=colour, hovertext=list(self.labels)), row=1, col=col)
             fig.update_xaxes(title_text="pose", row=1, col=col)
-        req = _required_accuracy(self.design)
+        req = required_accuracy(self.design)
         if req is not None:
             fig.add_hline(y=1e3 * req, line_dash="dash", line_color="#333333", row=1, col=2,
                           annotation_text="required accuracy")
@@ -663,7 +665,8 @@ def _concat(r1: SuspendedResult, r2: SuspendedResult) -> SuspendedResult:
     return replace(r1, **vals)
 
 
-def _required_accuracy(design) -> float | None:
+def required_accuracy(design) -> float | None:
+    """``[errors] required_accuracy`` [m], or None when the design gives none."""
     if design.sections.get("errors") is None:
         return None
     from .accuracy import error_budget
@@ -671,7 +674,7 @@ def _required_accuracy(design) -> float | None:
     return error_budget(design).required_accuracy
 
 
-def _needs_check(design) -> bool:
+def tilt_matters(design) -> bool:
     """Point platforms whose tilt can matter: separate attachments, an arm, or a centre of mass
     off the vertical through the meeting point."""
     if design.platform.kind != "point":
@@ -694,7 +697,7 @@ def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[C
     nothing can tilt the platform (no arm, centre of mass below the meeting point; see
     :func:`design_assumptions`).
     """
-    if not _needs_check(design):
+    if not tilt_matters(design):
         return []
     from .practice import PRACTICE, practice_value
 
@@ -702,7 +705,7 @@ def design_checks(design, *, suspended: SuspendedResult | None = None) -> list[C
     how = _METHOD if res.spread else _PENDULUM
     k = res.worst
     where = f"worst at {res.labels[k]}: tilt {math.degrees(float(res.tilt[k])):.2f} deg"
-    req = _required_accuracy(design)
+    req = required_accuracy(design)
     out = []
     if req is not None:
         value = 1e3 * float(res.tip_error[k])
@@ -750,7 +753,7 @@ def design_assumptions(design, **options) -> list[str]:
                 "arm base (the controller is taken to know the platform's tilt).",
                 "The workspace, tension and drivetrain checks use the point model (cables meeting at the platform's "
                 "reference point); the suspended-platform check reports the tensions at the real pose."]
-    if not _needs_check(design):
+    if not tilt_matters(design):
         return ["The platform is taken to stay level: its cables meet it at one point and its centre of mass lies "
                 "on the vertical through that point (not above it), so nothing turns it. An offset load (an arm reaching out) would "
                 "swing it like a pendulum; add the [arm] or state [platform] attachments to have the tilt computed."]

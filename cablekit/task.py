@@ -22,8 +22,9 @@ limits, levelling, platform inside the frame), **interference** (arm centre line
 against the frame's obstacle boxes), **tension** (feasible cable tensions with the arm's
 weight and offset and the payload while held), **servo load** (static load within the
 rated load) and, at the targets of a point platform, **tilt** (the real tilt under the arm's
-weight and the tool-tip error it causes, :mod:`cablekit.suspended`).  It estimates each move's time from the platform speed and acceleration, the
-winches' top cable speed and the servos' speeds, and reports the first failing step and why.
+weight and the tool-tip error it causes, :mod:`cablekit.suspended`).  It estimates each
+move's time from the platform speed and acceleration, the winches' top cable speed and the
+servos' speeds, and reports the first failing step and why.
 
 This is a static check: no dynamics, no cable sag, links as centre lines.  It does not make a
 rig safe: keep people clear of suspended loads and follow local codes and licensed practice.
@@ -515,26 +516,28 @@ def _target_tilt(design, poses, q, holding, at_target, sample_titles, reasons, p
     the platform.  Moves are not checked for tilt (stated in the summary)."""
     from . import suspended as sus
 
-    if not sus._needs_check(design):
+    if not sus.tilt_matters(design):
         return None
     idx = np.flatnonzero(at_target)
     if progress:
         progress(f"real platform tilt at {len(idx)} target poses")
     names = [f"{sample_titles[n]}, {'payload held' if holding[n] else 'gripper empty'}" for n in idx]
     res = sus.suspended_poses(design, poses[idx, :3], joints=q[idx], holding=holding[idx], labels=names)
-    req = sus._required_accuracy(design)
+    req = sus.required_accuracy(design)
     tilt_max = practice_value("platform_tilt_max", design.practice)
     for i, n in enumerate(idx):
         if reasons[n] is not None:
             continue
         deg, mm = math.degrees(float(res.tilt[i])), 1e3 * float(res.tip_error[i])
-        if res.slack[i].any():
+        if not res.stable[i]:
+            reasons[n] = ("tilt", "no stable pose of the platform holds these cable lengths")
+        elif res.slack[i].any():
             cab = ", ".join(c for c, s_ in zip(design.cable_names, res.slack[i]) if s_)
             reasons[n] = ("tilt", f"the platform tilts {deg:.1f} deg and cable {cab} goes slack")
-        elif req is not None and res.tip_error[i] > req:
+        elif req is not None and not res.tip_error[i] <= req:
             reasons[n] = ("tilt", f"the platform tilts {deg:.1f} deg under the arm's weight: the tool tip lands "
                                   f"{mm:.1f} mm off, required accuracy {1e3 * req:g} mm")
-        elif req is None and res.tilt[i] > tilt_max:
+        elif req is None and not res.tilt[i] <= tilt_max:
             reasons[n] = ("tilt", f"the platform tilts {deg:.1f} deg under the arm's weight (limit "
                                   f"{math.degrees(tilt_max):g} deg; tool tip {mm:.1f} mm off)")
     return res

@@ -331,6 +331,11 @@ def test_attachments_the_cables_cannot_reach_fail_without_a_traceback():
     checks = {c.key: c for c in design_checks(d)}
     assert checks["suspended_tip_error"].status == "fail"
     assert checks["suspended_taut"].status == "fail" and "no stable equilibrium" in checks["suspended_taut"].detail
+    from cablekit.task import check_task, read_task
+
+    report = check_task(d, read_task(d, EXAMPLES / "greenhouse_task.csv"))
+    targets = [s for s in report.steps if s.kind == "target"]
+    assert not report.ok and all(s.category == "tilt" and "no stable pose" in s.reason for s in targets)
 
 
 def test_second_order_test_tells_a_hanging_body_from_an_inverted_one():
