@@ -755,13 +755,15 @@ def design_assumptions(design, **options) -> list[str]:
                 "reference point); the suspended-platform check reports the tensions at the real pose."]
     if not tilt_matters(design):
         return ["The platform is taken to stay level: its cables meet it at one point and its centre of mass lies "
-                "on the vertical through that point (not above it), so nothing turns it. An offset load (an arm reaching out) would "
-                "swing it like a pendulum; add the [arm] or state [platform] attachments to have the tilt computed."]
+                "on the vertical through that point (not above it), so nothing turns it. An offset load (an arm "
+                "reaching out) would swing it like a pendulum; add the [arm] or state [platform] attachments to have "
+                "the tilt computed."]
     return ["The cables meet the platform at one point, so they cannot resist a moment: the platform hangs like a "
             "pendulum from that point and tilts until its centre of mass (with the arm at its pose and the payload) "
             "lies below it. The point model's positions and tensions still hold; the tilt and the tool-tip error it "
-            "causes are computed in closed form. The platform's turn about the vertical is not held by the cables "
-            "and is taken as zero."]
+            "causes are computed in closed form; levelling joints re-level the arm base (the controller is taken to "
+            "know the platform's tilt). The platform's turn about the vertical is not held by the cables and is "
+            "taken as zero."]
 
 
 def latex_equations(design) -> dict[str, str]:
@@ -777,6 +779,7 @@ def latex_equations(design) -> dict[str, str]:
             "check: force and moment balance": r"W\,\mathbf{t} + \mathbf{w} = \mathbf{0},\quad \mathbf{t} \ge 0",
         }
     return {
-        "real pose (a pendulum about the meeting point)": r"R\,(\mathbf{c} - \mathbf{b}_0) \parallel \mathbf{g}",
+        "real pose (a pendulum about the meeting point)": r"R\,(\mathbf{c} - \mathbf{b}_0) = \lambda\,\mathbf{g},"
+                                                          r"\quad \lambda > 0",
         "tool-tip error": r"e = \lVert \mathbf{p}_{tip}(R) - \mathbf{p}_{tip}(I) \rVert",
     }
