@@ -362,3 +362,12 @@ def test_second_order_test_tells_a_hanging_body_from_an_inverted_one():
             assert k == pytest.approx(-(c[2] - h) / (1 + h * h), rel=1e-4)  # finite-difference Hessian
         else:
             assert abs(k) < 1e-6  # the turn about the vertical through the apex is neutral
+
+
+def test_equations_typeset_for_both_models():
+    from cablekit.review import latex_to_mathml
+    from cablekit.suspended import latex_equations
+
+    for d in (_greenhouse(), _greenhouse(GREENHOUSE_TEXT.replace(ONE_SHACKLE, RING))):
+        eqs = latex_equations(d)
+        assert eqs and all(latex_to_mathml(latex) for latex in eqs.values())
