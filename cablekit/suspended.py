@@ -608,7 +608,7 @@ def design_poses(design, *, top: int = 6, starts: int = 3) -> SuspendedResult:
     """The design-level sweep: the home position and the task box centre with the arm at its
     home and at the ``top`` joint sets (of :func:`_joint_samples`, payload held and not) that
     move the centre of mass furthest off the vertical through the attachments' centre, then
-    the worst of those at the task box's corners."""
+    the worst of those and the first (arm at home, payload held) at the task box's corners."""
     arm = design.sections.get("arm")
     home = np.asarray(design.home_pose[:3], float)
     places = [("home", home)]
@@ -644,8 +644,9 @@ def design_poses(design, *, top: int = 6, starts: int = 3) -> SuspendedResult:
             H.append(hold)
     res = suspended_poses(design, np.array(P), joints=np.array(Js) if arm is not None else None,
                           holding=np.array(H), labels=labels, starts=starts)
-    if corners:
-        k = res.worst
+    # the corners with the worst arm pose found and with the first case (arm at home, payload
+    # held): separate attachments tilt the platform off-centre even with the arm at home
+    for k in dict.fromkeys([res.worst, 0]) if corners else ():
         more = suspended_poses(design, np.array([c for _, c in corners]),
                                joints=res.joints[k] if arm is not None else None, holding=bool(res.holding[k]),
                                labels=[f"{n}, {labels[k].split(', ', 1)[1]}" for n, _ in corners], starts=starts)
