@@ -847,8 +847,9 @@ def _suspended_part(key, title, mod, design, results, progress) -> Part:
         progress("  real platform tilt over the arm's reach")
         res = mod.design_poses(design)
     k = res.worst
-    q = [Quantity("suspended_tilt", "largest real platform tilt (arm reaching out)", math.degrees(float(res.tilt.max())),
-                  math.degrees(float(res.tilt.max())), "deg", source="cablekit.suspended.design_poses"),
+    tilt = math.degrees(float(res.tilt.max()))
+    q = [Quantity("suspended_tilt", "largest real platform tilt (arm reaching out)", tilt, tilt, "deg",
+                  source="cablekit.suspended.design_poses"),
          Quantity("suspended_tip_error", "largest tool-tip error from that tilt", 1e3 * float(res.tip_error[k]),
                   1e3 * float(res.tip_error[k]), "mm", source="cablekit.suspended.design_poses")]
     return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(res.summary()),

@@ -116,7 +116,8 @@ class BodyEquilibrium:
     position : (3,) reference point [m]; rotation : (3, 3) platform to world; tensions : (m,)
     [N] from force and moment balance; residual : unbalanced wrench / weight [-] (force part in
     N per N, moment part in N*m per N, i.e. m); stable : the reduced Hessian is positive
-    semi-definite (neutral directions allowed); min_curvature : its least eigenvalue [m] (per unit weight); slack : (m,) cables
+    semi-definite (neutral directions allowed); min_curvature : its least eigenvalue [m] (per
+    unit weight); slack : (m,) cables
     shorter than their commanded length (not pulling); height : centre-of-mass height along
     up [m]; starts : optimiser starts run; agree : starts that reached the same least height.
     ``stable`` is False as well when the result does not balance the load with pulling cables
@@ -336,7 +337,8 @@ def _reduced_curvature(a, b, L, c, up, p, R, lam, G, h: float = 1e-4) -> float:
     E = np.eye(n) * h
     for i in range(n):
         for j in range(i, n):
-            H[i, j] = H[j, i] = (lag(E[i] + E[j]) - lag(E[i] - E[j]) - lag(-E[i] + E[j]) + lag(-E[i] - E[j])) / (4 * h * h)
+            H[i, j] = H[j, i] = (lag(E[i] + E[j]) - lag(E[i] - E[j]) - lag(-E[i] + E[j])
+                                 + lag(-E[i] - E[j])) / (4 * h * h)
     if len(G):
         _, s, Vt = np.linalg.svd(G)
         rank = int(np.sum(s > 1e-9 * s[0]))
@@ -600,7 +602,8 @@ def _joint_samples(arm, *, cap: int = 2000) -> tuple[np.ndarray, list[str]]:
         q = arm.home.copy()
         q[free] = combo
         rows.append(q)
-        names.append("arm " + ", ".join(f"{arm.joints[k].name} {arm.joints[k].display(v)}" for k, v in zip(free, combo)))
+        names.append("arm " + ", ".join(f"{arm.joints[k].name} {arm.joints[k].display(v)}"
+                                        for k, v in zip(free, combo)))
     return np.array(rows), names
 
 
@@ -617,8 +620,8 @@ def design_poses(design, *, top: int = 6, starts: int = 3) -> SuspendedResult:
     if t.box_lower is not None:
         lo, hi = np.asarray(t.box_lower, float), np.asarray(t.box_upper, float)
         places.append(("task box centre", 0.5 * (lo + hi)))
-        corners = [(f"task box corner ({', '.join(f'{v:.2f}' for v in c)}) m", c)
-                   for c in (np.array([x, y, z]) for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2]))]
+        pts = [np.array([x, y, z]) for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2])]
+        corners = [(f"task box corner ({', '.join(f'{v:.2f}' for v in c)}) m", c) for c in pts]
     elif t.points:
         places += [(f"task point {k + 1}", np.asarray(p, float)) for k, p in enumerate(t.points[:8])]
     up = -np.asarray(design.frame.gravity_direction, float)

@@ -279,9 +279,9 @@ class TaskReport:
             r = self.suspended
             k = r.worst
             lines.append(f"real platform tilt at the targets (moves not checked): up to "
-                         f"{math.degrees(float(r.tilt.max())):.1f} deg, tool tip up to {1e3 * float(r.tip_error[k]):.1f} "
-                         f"mm off ({r.labels[k]}); pose from {'least potential energy' if r.spread else 'a pendulum'}"
-                         " (cablekit.suspended)")
+                         f"{math.degrees(float(r.tilt.max())):.1f} deg, tool tip up to "
+                         f"{1e3 * float(r.tip_error[k]):.1f} mm off ({r.labels[k]}); pose from "
+                         f"{'least potential energy' if r.spread else 'a pendulum'} (cablekit.suspended)")
         lines.append(f"note: {CAUTION}")
         return lines
 

@@ -91,6 +91,10 @@ ONE_SHACKLE = 'attachments = ["0, 0, 0 m", "0, 0, 0 m", "0, 0, 0 m"]'
 RING = 'attachments = ["-0.0433, -0.025, 0 m", "0.0433, -0.025, 0 m", "0, 0.05, 0 m"]'  # 50 mm ring
 
 
+NO_ARM = (GREENHOUSE_TEXT.split("# The servo arm under the platform")[0]
+          + GREENHOUSE_TEXT[GREENHOUSE_TEXT.index("[errors]"):])  # the demo without its [arm]
+
+
 def _without_levelling(text):
     """The demo arm without its levelling gimbal, hung 40 mm below the platform point, the
     platform's own centre of mass at the shackle (the greenhouse design before it was fixed)."""
@@ -122,7 +126,7 @@ def test_point_platform_attachments_parse_and_save():
 
 def test_centred_point_platform_states_that_it_stays_level():
     # no arm and the centre of mass below the point: nothing to check, the sheet says why
-    text = GREENHOUSE_TEXT.split("# The servo arm under the platform")[0] + GREENHOUSE_TEXT[GREENHOUSE_TEXT.index("[errors]"):]
+    text = NO_ARM
     d = loads_design(text)
     assert design_checks(d) == []
     assert "stay level" in " ".join(design_assumptions(d))
@@ -239,11 +243,9 @@ def test_nearly_coincident_attachments_pass():
     # a bare platform (no arm) whose eyes sit on a 0.5 mm ring, centre of mass 50 mm below: tilt
     # and shift stay small over the task box and the check passes (a check that can pass; a 2 mm
     # ring already warns, its point-model lengths dropping the platform about 3 mm)
-    text = GREENHOUSE_TEXT.split("# The servo arm under the platform")[0]
-    text = text.replace(ONE_SHACKLE, 'attachments = ["-0.433, -0.25, 0 mm", "0.433, -0.25, 0 mm", "0, 0.5, 0 mm"]')
+    text = NO_ARM.replace(ONE_SHACKLE, 'attachments = ["-0.433, -0.25, 0 mm", "0.433, -0.25, 0 mm", "0, 0.5, 0 mm"]')
     text = text.replace('center_of_mass = "0, 0, -0.25 m"', 'center_of_mass = "0, 0, -0.05 m"')
-    errors = GREENHOUSE_TEXT[GREENHOUSE_TEXT.index("[errors]"):]
-    d = loads_design(text + errors)
+    d = loads_design(text)
     assert has_spread_attachments(d)
     checks = design_checks(d)
     assert [c.status for c in checks] == ["pass"], checks
@@ -273,10 +275,10 @@ def test_task_check_fails_a_target_the_tilt_puts_off_target(tmp_path):
 def test_a_cable_going_slack_at_the_real_pose_fails():
     # a 300 mm ring and a 2 kg load 0.5 m off the axis: at the real (tilted) pose one cable
     # carries nothing although the point model holds every cable taut (cables only pull)
-    text = GREENHOUSE_TEXT.split("# The servo arm under the platform")[0] + GREENHOUSE_TEXT[GREENHOUSE_TEXT.index("[errors]"):]
+    text = NO_ARM
     ring = 'attachments = ["-0.2598, -0.15, 0 m", "0.2598, -0.15, 0 m", "0, 0.3, 0 m"]'
-    text = text.replace(ONE_SHACKLE, ring).replace('name = "seedling tray"\nmass = "0.5 kg"',
-                                                  'name = "seedling tray"\nmass = "2 kg"\ncenter_of_mass = "0.5, 0, 0 m"')
+    heavy = 'name = "seedling tray"\nmass = "2 kg"\ncenter_of_mass = "0.5, 0, 0 m"'
+    text = text.replace(ONE_SHACKLE, ring).replace('name = "seedling tray"\nmass = "0.5 kg"', heavy)
     checks = {c.key: c for c in design_checks(loads_design(text))}
     assert checks["suspended_taut"].status == "fail" and "goes slack" in checks["suspended_taut"].detail
     assert checks["suspended_tip_error"].status == "fail"
