@@ -373,3 +373,31 @@ def test_equations_typeset_for_both_models():
     for d in (_greenhouse(), _greenhouse(GREENHOUSE_TEXT.replace(ONE_SHACKLE, RING))):
         eqs = latex_equations(d)
         assert eqs and all(latex_to_mathml(latex) for latex in eqs.values())
+
+
+@pytest.mark.filterwarnings("ignore:delta_grad == 0.0")  # trust-constr on a height linear in p: harmless
+def test_spread_equilibrium_matches_an_independent_optimiser():
+    # the greenhouse on a 50 mm ring, off-centre, wrist reaching out: the same least-energy
+    # pose from scipy's trust-constr on Euler angles with numerical derivatives (a different
+    # algorithm and parameterisation; general-purpose reference library scipy.optimize)
+    from scipy.optimize import NonlinearConstraint, minimize
+    from scipy.spatial.transform import Rotation
+
+    from cablekit.suspended import _body
+
+    d = _greenhouse(_without_levelling(GREENHOUSE_TEXT).replace(ONE_SHACKLE, RING))
+    q = np.array([0.08, math.pi / 2, math.radians(30)])
+    P = np.array([1.8, 1.1, 0.9])
+    res = suspended_poses(d, [P], joints=q, holding=True)
+    M, c = _body(d, q, True)
+    a, b = d.exits, res.attachments
+    L = np.linalg.norm(a - P, axis=1)  # the point model's lengths
+    rot = lambda x: Rotation.from_euler("xyz", x[3:]).as_matrix()  # noqa: E731
+    height = lambda x: (x[:3] + rot(x) @ c)[2]  # noqa: E731
+    lengths = lambda x: np.linalg.norm(a - x[:3] - b @ rot(x).T, axis=1)  # noqa: E731
+    ref = minimize(height, np.concatenate([P, np.zeros(3)]), method="trust-constr",
+                   constraints=[NonlinearConstraint(lengths, -np.inf, L)], options={"gtol": 1e-12, "xtol": 1e-12,
+                                                                                     "maxiter": 5000})
+    assert height(ref.x) == pytest.approx((res.position[0] + res.rotation[0] @ c)[2], abs=1e-6)
+    np.testing.assert_allclose(ref.x[:3], res.position[0], atol=1e-4)  # flat optimum: position to 0.1 mm
+    np.testing.assert_allclose(rot(ref.x), res.rotation[0], atol=1e-3)
