@@ -15,7 +15,7 @@ Model
 -----
 * The winches hold the lengths of the **point model** at the nominal position ``p_c``,
   ``L_i = |a_i - p_c|``, as cablekit's kinematics and the task plan write them (or, with
-  ``commanded="level"``, those of the level platform with its attachments,
+  ``controller="level"``, those of the level platform with its attachments,
   ``L_i = |a_i - p_c - b_i|``).
 * The platform, payload and arm (joints fixed) are one rigid body of mass ``M`` with centre of
   mass ``c`` in the platform frame.  The equilibrium pose ``(p, R)`` minimises the height of
@@ -482,8 +482,8 @@ def meeting_attachments(design) -> np.ndarray:
     return b if b.size else np.zeros((design.m, 3))
 
 
-def suspended_poses(design, positions, *, joints=None, holding=False, labels=None, commanded: str = "point",
-                    starts: int = 5, max_level_iter: int = 30) -> SuspendedResult:
+def suspended_poses(design, positions, *, joints=None, holding=False, labels=None,
+                    controller: str = "point", starts: int = 5, max_level_iter: int = 30) -> SuspendedResult:
     """The real pose of the platform at each commanded position, the arm at ``joints``.
 
     Parameters
@@ -494,7 +494,7 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
         levelling joints (if any) are solved for the tilt found, within their limits.
     holding : bool or (N,) the gripper holds the payload.
     labels : names of the poses for the summary.
-    commanded : the cable lengths the winches hold: ``"point"`` (``|a_i - p|``, the point model,
+    controller : the cable lengths the winches hold: ``"point"`` (``|a_i - p|``, the point model,
         as cablekit's kinematics and the task plan write them) or ``"level"``
         (``|a_i - p - b_i|``, a controller that knows the attachments and aims the level platform).
 
@@ -521,9 +521,9 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
     labels = tuple(labels) if labels is not None else tuple(f"pose {k + 1}" for k in range(N))
     a = design.exits
     up = -np.asarray(design.frame.gravity_direction, float)
-    if commanded not in ("point", "level"):
-        raise ValueError(f"commanded must be 'point' or 'level', got {commanded!r}")
-    L = level_lengths(a, b if commanded == "level" else np.zeros_like(b), P)
+    if controller not in ("point", "level"):
+        raise ValueError(f"controller must be 'point' or 'level', got {controller!r}")
+    L = level_lengths(a, b if controller == "level" else np.zeros_like(b), P)
     lev = list(arm.levelling) if arm is not None else []
 
     def levelled(q, R):
@@ -549,7 +549,7 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
                     eq = _no_pose(len(a))
                     break
             else:
-                O = P[k] + b[0] if commanded == "level" else P[k]  # where the lengths put the meeting point
+                O = P[k] + b[0] if controller == "level" else P[k]  # where the lengths put the meeting point
                 eq = pendulum_equilibrium(a, b[0], O, mass=M, center_of_mass=c, gravity=design.gravity)
             moved = float(np.linalg.norm(eq.rotation - R))
             R = eq.rotation

@@ -205,21 +205,21 @@ def test_the_fixed_demo_tilts_but_its_levelled_arm_keeps_the_tip():
 
 def test_spread_attachments_tilt_the_platform_even_with_the_arm_at_home():
     # a 50 mm ring of eyes, each facing its post, on the rig without levelling, the winches
-    # aiming the level platform (commanded="level"): under the exits' centroid the three cable
+    # aiming the level platform (controller="level"): under the exits' centroid the three cable
     # lines meet on the axis and the platform hangs level; off-centre they do not, and it tilts
     # with no arm offset at all (checked by the force and moment residual)
     d = _greenhouse(_without_levelling(GREENHOUSE_TEXT).replace(ONE_SHACKLE, RING))
-    centre = suspended_poses(d, [[1.5, 0.8667, 1.2]], holding=True, commanded="level")
+    centre = suspended_poses(d, [[1.5, 0.8667, 1.2]], holding=True, controller="level")
     assert math.degrees(centre.tilt[0]) < 1e-3 and centre.tip_error[0] < 2e-4  # exits 1 mm off symmetric
-    side = suspended_poses(d, [[1.8, 1.1, 0.9]], holding=True, commanded="level")
+    side = suspended_poses(d, [[1.8, 1.1, 0.9]], holding=True, controller="level")
     assert math.degrees(side.tilt[0]) > 1.0 and side.residual[0] < 1e-6 and side.stable[0]
     # with the point model's lengths (what the task plan writes) the ring's offsets alone put
     # the platform several centimetres low
     point = suspended_poses(d, [[1.5, 0.8667, 1.2]], holding=True)
     assert point.shift[0] > 0.03 and point.position[0, 2] < 1.2
     assert "least-potential-energy" in " ".join(design_assumptions(d))
-    with pytest.raises(ValueError, match="commanded"):
-        suspended_poses(d, [[1.5, 0.8667, 1.2]], commanded="ideal")
+    with pytest.raises(ValueError, match="controller"):
+        suspended_poses(d, [[1.5, 0.8667, 1.2]], controller="ideal")
 
 
 def test_point_model_lengths_on_a_ring_drop_the_platform_by_the_closed_form():
