@@ -48,7 +48,7 @@ Nocedal, J., Wright, S. J. *Numerical Optimization*, 2nd ed. Springer, 2006, thm
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -555,6 +555,9 @@ def suspended_poses(design, positions, *, joints=None, holding=False, labels=Non
             R = eq.rotation
             if moved < 1e-8:  # rad: the tilt has settled
                 break
+        else:
+            if lev and moved > 1e-6:  # the levelling and the tilt did not settle: no pose to trust
+                eq = replace(eq, stable=False)
         J[k] = q
         for key, v in (("position", eq.position), ("rotation", eq.rotation), ("tensions", eq.tensions),
                        ("slack", eq.slack), ("residual", eq.residual), ("stable", eq.stable)):
@@ -658,7 +661,7 @@ def design_poses(design, *, top: int = 6, starts: int = 3) -> SuspendedResult:
 
 
 def _concat(r1: SuspendedResult, r2: SuspendedResult) -> SuspendedResult:
-    from dataclasses import fields, replace
+    from dataclasses import fields
 
     vals = {}
     for f in fields(SuspendedResult):
