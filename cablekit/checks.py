@@ -87,6 +87,7 @@ CHECK_PROVIDERS: list[str] = [
     "cablekit.cables:design_checks",
     "cablekit.accuracy:design_checks",
     "cablekit.arm:design_checks",
+    "cablekit.suspended:design_checks",
 ]
 
 

@@ -304,6 +304,11 @@ class Platform:
     3x3 row-major [kg*m**2] (zero for a point); attachments ``b_i`` in the platform frame [m],
     one per cable; body_half_size: half-extents of the platform body box [m] (used to find
     cables passing through the body; zero for a point).
+
+    built_attachments : point platforms only: where each cable really meets the platform, in
+    the platform frame [m], one per cable (``()`` when not stated: the attachments coincide).
+    The point model (``attachments`` all zero) still drives the kinematics and the controller;
+    :mod:`cablekit.suspended` uses these to find the tilt the point model assumes away.
     """
 
     kind: str
@@ -312,6 +317,7 @@ class Platform:
     center_of_mass: Vec3 = (0.0, 0.0, 0.0)
     inertia: tuple[float, ...] = (0.0,) * 9
     body_half_size: Vec3 = (0.0, 0.0, 0.0)
+    built_attachments: tuple[Vec3, ...] = ()
 
     @property
     def dof(self) -> int:
@@ -624,10 +630,15 @@ def _parse_platform(c: _Collector, doc: Mapping, m: int | None) -> Platform | No
     kind = c.text(t, "kind", "platform", required=True, choices=("point", "rigid"))
     mass = c.quantity(t, "mass", "mass", "platform", positive=True)
     com = c.vector(t, "center_of_mass", "length", "platform", required=False, default=(0.0, 0.0, 0.0))
+    built = ()
     if kind == "point":
-        for key in ("attachments", "inertia", "body_half_size"):
+        for key in ("inertia", "body_half_size"):
             if key in t:
                 c.add(f"platform.{key}", t[key], "not used by a point platform (kind = 'point'); remove it")
+        if "attachments" in t and (m is None or m >= 3):  # where the cables really meet it (cablekit.suspended)
+            built = _parse_attachment_list(c, t.get("attachments"), m)
+            if built is None:
+                return None
         att = tuple((0.0, 0.0, 0.0) for _ in range(m or 0))
         inertia = (0.0,) * 9
         body = (0.0, 0.0, 0.0)
@@ -676,7 +687,24 @@ def _parse_platform(c: _Collector, doc: Mapping, m: int | None) -> Platform | No
     if None in (kind, mass, com):
         return None
     return Platform(kind=kind, mass=mass, attachments=att, center_of_mass=com, inertia=inertia,
-                    body_half_size=body)
+                    body_half_size=body, built_attachments=built)
+
+
+def _parse_attachment_list(c: _Collector, att_raw, m: int | None) -> tuple[Vec3, ...] | None:
+    """A point platform's stated attachments: one '0.1, 0, 0 m' per cable (None on a problem)."""
+    if not isinstance(att_raw, list):
+        c.add("platform.attachments", att_raw, "a list with one attachment point per cable, e.g. ['0.1, 0.1, 0 m', ...]")
+        return None
+    if m is not None and len(att_raw) != m:
+        c.add("platform.attachments", f"{len(att_raw)} points", f"one attachment per cable: {m} expected")
+        return None
+    out = []
+    for k, a in enumerate(att_raw):
+        try:
+            out.append(parse_vector(a, "length", field=f"platform.attachments[{k}]"))
+        except UnitError as exc:
+            c.add(f"platform.attachments[{k}]", a, str(exc).split(": ", 1)[-1])
+    return tuple(out) if len(out) == len(att_raw) else None
 
 
 USE_CLASSES = ("general", "over_people")  # rope use classes (cable.use_class)
@@ -1327,6 +1355,8 @@ def design_to_dict(d: Design) -> dict:
     doc["frame"] = frame
     p = d.platform
     plat: dict[str, Any] = {"kind": p.kind, "mass": _q(p.mass, "mass"), "center_of_mass": _v(p.center_of_mass, "length")}
+    if p.kind == "point" and p.built_attachments:
+        plat["attachments"] = [_v(a, "length") for a in p.built_attachments]
     if p.kind == "rigid":
         plat["attachments"] = [_v(a, "length") for a in p.attachments]
         plat["inertia"] = _v(p.inertia, "inertia")

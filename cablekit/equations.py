@@ -16,7 +16,7 @@ __all__ = ["EQUATION_MODULES", "module_equations", "collect_equations"]
 
 # modules that may provide latex_equations(); missing ones are skipped
 EQUATION_MODULES = ("symbolic", "tension", "workspace", "cables", "stiffness", "drive", "accuracy", "arm",
-                    "tooltip", "task")
+                    "tooltip", "task", "suspended")
 
 
 def module_equations(mod, design) -> tuple[tuple[str, str], ...]:

@@ -148,6 +148,11 @@ PRACTICE: dict[str, PracticeEntry] = {
                       "not counted)",
                       "hoist and winch standards commonly ask a brake to hold 125 % of the rated load torque "
                       "(ASME B30.7 / B30.16, from memory)"),
+        PracticeEntry("platform_tilt_max", 1.0 * _DEG, "angle",
+                      "largest tilt of a suspended platform under an offset load (used when no required accuracy "
+                      "is given)",
+                      "common practice, no source: 1 deg of tilt moves a tool 0.3 m below the platform by about "
+                      "5 mm"),
     ]
 }
 

@@ -676,6 +676,8 @@ def _analysis_parts():
         ("accuracy", "Accuracy: predicted positioning error over the task region", "cablekit.accuracy",
          "positioning accuracy", _accuracy_part),
         ("arm", "Arm: reach and servo loads", "cablekit.arm", "arm reach and servo loads", _arm_part),
+        ("suspended", "Suspended platform: real tilt under the arm and payload", "cablekit.suspended",
+         "the platform's real tilt and the tool-tip error it causes", _suspended_part),
     ]
 
 
@@ -838,6 +840,30 @@ def _arm_part(key, title, mod, design, results, progress) -> Part:
                 quantities=tuple(q), equations=module_equations(mod, design), options={"arm_reach": r})
 
 
+def _suspended_part(key, title, mod, design, results, progress) -> Part:
+    """The real tilt of a point platform (cablekit.suspended): summary, figure, equations."""
+    if not mod.tilt_matters(design):
+        why = ("a rigid platform is held in orientation by its cables" if design.platform.kind != "point" else
+               "no arm and the centre of mass below the point where the cables meet: nothing tilts the platform")
+        return Part(key=key, title=title, module=mod.__name__, available=True, summary=(f"Not needed: {why}.",))
+    res = results.get("suspended")
+    if res is None:
+        progress("  real platform tilt over the arm's reach")
+        res = mod.design_poses(design)
+    k = res.worst
+    tilt = math.degrees(float(res.tilt.max()))
+    q = [Quantity("suspended_tilt", "largest real platform tilt (arm reaching out)", tilt, tilt, "deg",
+                  source="cablekit.suspended.design_poses"),
+         Quantity("suspended_tip_error", "largest tool-tip error from that tilt", 1e3 * float(res.tip_error[k]),
+                  1e3 * float(res.tip_error[k]), "mm", source="cablekit.suspended.design_poses")]
+    return Part(key=key, title=title, module=mod.__name__, available=True, summary=tuple(res.summary()),
+                figures=(("Real platform tilt and tool-tip error at the poses checked", res.figure()),),
+                quantities=tuple(q), equations=module_equations(mod, design),
+                not_checked=("The real tilt is found at the task box's centre, corners and home, with the arm at its "
+                             "home, limits and 45 deg steps; moves between task targets are not checked for tilt.",),
+                options={"suspended": res})
+
+
 # ======================================================================================
 # building the sheet
 # ======================================================================================
@@ -857,7 +883,7 @@ def build_review(design, *, source_path=None, date: str | None = None, results: 
     results : mapping, optional
         Result objects already computed for this design, by the option name
         :func:`~cablekit.checks.run_all` passes them under (``"workspace"``, ``"drive"``,
-        ``"accuracy"``, ``"arm_reach"``); reused instead of computed again (the dashboard
+        ``"accuracy"``, ``"arm_reach"``, ``"suspended"``); reused instead of computed again (the dashboard
         passes what it already shows).  They must belong to ``design``.
     progress : callable, optional
         Called with a short text before each long step.
@@ -1124,6 +1150,9 @@ def _render_inputs(design) -> str:
     if p.kind == "rigid":
         out.append(_table(["cable", "attachment in the platform frame [mm]"],
                           [[_h(n), _vec(a, "mm")] for n, a in zip(d.cable_names, p.attachments)]))
+    elif p.built_attachments:  # a point platform's stated attachments (cablekit.suspended)
+        out.append(_table(["cable", "attachment as built, platform frame [mm]"],
+                          [[_h(n), _vec(a, "mm")] for n, a in zip(d.cable_names, p.built_attachments)]))
     c = d.cable
     out.append("<h3>Cable</h3>")
     out.append(_kv([("construction", _h(c.construction or "(not given)")), ("diameter", _si(c.diameter, "mm")),

@@ -20,9 +20,11 @@ A task CSV lists tool-tip targets in order (units in the headers, read by
 (sampled: tip, wrist and joints interpolated linearly) for, in this order: **reach** (joint
 limits, levelling, platform inside the frame), **interference** (arm centre line and cables
 against the frame's obstacle boxes), **tension** (feasible cable tensions with the arm's
-weight and offset and the payload while held) and **servo load** (static load within the
-rated load).  It estimates each move's time from the platform speed and acceleration, the
-winches' top cable speed and the servos' speeds, and reports the first failing step and why.
+weight and offset and the payload while held), **servo load** (static load within the
+rated load) and, at the targets of a point platform, **tilt** (the real tilt under the arm's
+weight and the tool-tip error it causes, :mod:`cablekit.suspended`).  It estimates each
+move's time from the platform speed and acceleration, the winches' top cable speed and the
+servos' speeds, and reports the first failing step and why.
 
 This is a static check: no dynamics, no cable sag, links as centre lines.  It does not make a
 rig safe: keep people clear of suspended loads and follow local codes and licensed practice.
@@ -238,6 +240,8 @@ class TaskReport:
     sample_tips: np.ndarray
     sample_platform: np.ndarray
     interference_method: str
+    suspended: object = None  # cablekit.suspended.SuspendedResult at the targets' samples, or None
+    suspended_rows: np.ndarray | None = None  # (K,) row of ``suspended`` for each target (after the gripper)
 
     @property
     def ok(self) -> bool:
@@ -272,6 +276,13 @@ class TaskReport:
             if others:
                 lines.append(f"  {len(others)} more failing step{'s' if len(others) != 1 else ''}: "
                              + "; ".join(f"{s.number} ({s.category})" for s in others[:8]))
+        if self.suspended is not None:
+            r = self.suspended
+            k = r.worst
+            lines.append(f"real platform tilt at the targets (moves not checked): up to "
+                         f"{math.degrees(float(r.tilt.max())):.1f} deg, tool tip up to "
+                         f"{1e3 * float(r.tip_error[k]):.1f} mm off ({r.labels[k]}); pose from "
+                         f"{'least potential energy' if r.spread else 'a pendulum'} (cablekit.suspended)")
         lines.append(f"note: {CAUTION}")
         return lines
 
@@ -466,6 +477,10 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
                                      f"({'payload held' if holding[n] else 'gripper empty'})"))
         else:
             reasons.append(None)
+    # the platform's real tilt at the targets (point platforms: cablekit.suspended)
+    step_kind = np.array(kinds)[step_of]
+    susp = _target_tilt(design, poses, q, holding, step_kind == "target", [titles[i] for i in step_of], reasons,
+                        progress)
     # times
     L = cable_lengths(design, poses)
     v_cable = cable_speed_limits(design)
@@ -495,7 +510,44 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
     return TaskReport(design=design, targets=targets, platform_poses=poses[last], joints=q[last], lengths=L[last],
                       counts=counts, tensions=ten.tensions[last], margin=ten.margin[last], servo_use=use[last],
                       steps=tuple(steps), sample_tips=tips, sample_platform=poses[:, :3],
-                      interference_method="segment vs box (cablekit.workspace)")
+                      interference_method="segment vs box (cablekit.workspace)", suspended=susp,
+                      suspended_rows=None if susp is None else np.searchsorted(np.flatnonzero(step_kind == "target"),
+                                                                              last))
+
+
+def _target_tilt(design, poses, q, holding, at_target, sample_titles, reasons, progress):
+    """The real tilt and tool-tip error at every target sample (arriving and after the gripper
+    acts) of a point platform (:func:`cablekit.suspended.suspended_poses`); a target whose tip
+    error exceeds the required accuracy (or, without one, whose tilt exceeds the practice limit)
+    fails with category "tilt".  ``reasons`` is updated in place.  None when nothing can tilt
+    the platform.  Moves are not checked for tilt (stated in the summary)."""
+    from . import suspended as sus
+
+    if not sus.tilt_matters(design):
+        return None
+    idx = np.flatnonzero(at_target)
+    if progress:
+        progress(f"real platform tilt at {len(idx)} target poses")
+    names = [f"{sample_titles[n]}, {'payload held' if holding[n] else 'gripper empty'}" for n in idx]
+    res = sus.suspended_poses(design, poses[idx, :3], joints=q[idx], holding=holding[idx], labels=names)
+    req = sus.required_accuracy(design)
+    tilt_max = practice_value("platform_tilt_max", design.practice)
+    for i, n in enumerate(idx):
+        if reasons[n] is not None:
+            continue
+        deg, mm = math.degrees(float(res.tilt[i])), 1e3 * float(res.tip_error[i])
+        if not res.stable[i]:
+            reasons[n] = ("tilt", "no stable pose of the platform holds these cable lengths")
+        elif res.slack[i].any():
+            cab = ", ".join(c for c, s_ in zip(design.cable_names, res.slack[i]) if s_)
+            reasons[n] = ("tilt", f"the platform tilts {deg:.1f} deg and cable {cab} goes slack")
+        elif req is not None and not res.tip_error[i] <= req:
+            reasons[n] = ("tilt", f"the platform tilts {deg:.1f} deg under the arm's weight: the tool tip lands "
+                                  f"{mm:.1f} mm off, required accuracy {1e3 * req:g} mm")
+        elif req is None and not res.tilt[i] <= tilt_max:
+            reasons[n] = ("tilt", f"the platform tilts {deg:.1f} deg under the arm's weight (limit "
+                                  f"{math.degrees(tilt_max):g} deg; tool tip {mm:.1f} mm off)")
+    return res
 
 
 def _tension_reason(res: TensionResult, n: int, lim, names) -> str:
@@ -543,6 +595,9 @@ def write_plan(report: TaskReport, path):
     header += [f"length {n} [m]" for n in names] + [f"counts {n}" for n in names]
     header += [f"tension {n} [N]" for n in names]
     header += ["margin [N]", "servo use [%]", "move time [s]", "move limited by", "move check", "target check"]
+    tilted = report.suspended is not None
+    if tilted:  # the real tilt of a point platform (cablekit.suspended)
+        header += ["platform tilt [deg]", "tilt tip error [mm]"]
     moves = {s.target: s for s in report.steps if s.kind == "move"}
     tsteps = {s.target: s for s in report.steps if s.kind == "target"}
     rows = []
@@ -559,6 +614,9 @@ def write_plan(report: TaskReport, path):
         row += [float(report.margin[k]), float(100 * report.servo_use[k].max()),
                 float(mv.time) if mv else 0.0, mv.limited_by if mv else "",
                 ("ok" if mv.ok else mv.reason) if mv else "", "ok" if tsteps[k].ok else tsteps[k].reason]
+        if tilted:
+            i = int(report.suspended_rows[k])
+            row += [float(np.degrees(report.suspended.tilt[i])), float(1e3 * report.suspended.tip_error[i])]
         rows.append(row)
     f = report.first_failure
     comment = (f"cablekit task plan: {d.meta.name}\n"

@@ -14,6 +14,11 @@ tilting the wrist while the platform moves this way keeps the tip where it is.
 their weight adds to the platform's force and, on a rigid platform, their offset adds the
 moment ``sum r_k x m_k g`` about the platform's reference point.
 
+**Point platforms** are taken level here (``R_p = I``).  The moment of the arm's offset weight
+tilts a real one (it hangs like a pendulum from the point where its cables meet, or from
+separate attachments); :mod:`cablekit.suspended` finds that tilt and the tool-tip error it
+causes, and the task check and the review sheet judge it.
+
 SI inside: positions [m], angles [rad], masses [kg], forces [N], moments [N*m].
 """
 
@@ -55,7 +60,8 @@ def design_arm(design) -> Arm:
 
 
 def platform_rotations(design, poses) -> np.ndarray:
-    """Platform orientations (N, 3, 3): identity for a point platform."""
+    """Platform orientations (N, 3, 3): identity for a point platform (taken level; its real
+    tilt is :func:`cablekit.suspended.suspended_poses`)."""
     q = as_poses(design, poses)
     if design.dof == 3:
         return np.broadcast_to(np.eye(3), (q.shape[0], 3, 3)).copy()

@@ -259,13 +259,14 @@ def test_manipulability_of_the_two_link_arm():
 # --------------------------------------------------------------------------------------
 def test_demo_arm_in_the_design(greenhouse):
     arm = greenhouse.sections["arm"]
-    assert [j.role for j in arm.joints] == ["reach", "wrist_roll", "wrist_tilt"]
+    assert [j.role for j in arm.joints] == ["levelling", "levelling", "reach", "wrist_roll", "wrist_tilt"]
     assert arm.payload_source == "design" and arm.payload == greenhouse.payload.mass
-    assert arm.total_mass == pytest.approx(0.10 + 0.06 + 0.04 + 0.12)  # links + gripper, by hand
-    assert greenhouse.total_mass == pytest.approx(1.2 + 0.5 + 0.32)
+    assert arm.total_mass == pytest.approx(0.05 + 0.05 + 0.10 + 0.06 + 0.04 + 0.12)  # links + gripper, by hand
+    assert greenhouse.total_mass == pytest.approx(1.2 + 0.5 + 0.42)
     w = external_wrench(greenhouse, [[1.5, 0.8, 1.0]])[0]
     assert w[2] == pytest.approx(-greenhouse.total_mass * greenhouse.frame.g)
-    # tip straight below the mount at home: 40 mm mount + 80 mm lift + 30 mm + 110 mm tool
+    # tip straight below the mount at home (gimbal at the mount, levelling at home): 40 mm slide
+    # offset + 80 mm lift + 30 mm + 110 mm tool
     tip = np.asarray(arm.mount) + forward_kinematics(arm, arm.home).tip[0] @ rotation_matrices(
         np.array(arm.mount_orientation))[0].T
     np.testing.assert_allclose(tip, [0.0, 0.0, -0.26], atol=1e-12)
@@ -278,11 +279,11 @@ def test_reach_and_weakest_servo_of_the_demo(greenhouse):
     # and tilt link (0.04 kg at 50 mm) at 90 deg: (0.055 + 0.0096 + 0.002) kg*m * g
     assert arm.joints[r.weakest].name == "tilt"
     assert r.peak_load[r.weakest] == pytest.approx((0.5 * 0.11 + 0.12 * 0.08 + 0.04 * 0.05) * G, rel=1e-9)
-    assert abs(r.joints[r.weakest_sample, 2]) == pytest.approx(math.pi / 2)
+    assert abs(r.joints[r.weakest_sample, 4]) == pytest.approx(math.pi / 2)
     # the lift carries everything below it, whatever the pose: (0.10 + 0.06 + 0.04 + 0.12 + 0.5) kg * g
-    np.testing.assert_allclose(np.abs(r.loads[:, 0]), 0.82 * G, rtol=1e-12)
+    np.testing.assert_allclose(np.abs(r.loads[:, 2]), 0.82 * G, rtol=1e-12)
     # a vertical wrist-roll axis takes no gravity torque
-    np.testing.assert_allclose(r.loads[:, 1], 0.0, atol=1e-12)
+    np.testing.assert_allclose(r.loads[:, 3], 0.0, atol=1e-12)
     # reach: tip from 110 mm (lift 40 mm, tilted 90 deg) to 420 mm below the platform point
     assert r.tips[:, 2].max() == pytest.approx(-0.04 - 0.04 - 0.03, abs=1e-12)
     assert r.tips[:, 2].min() == pytest.approx(-0.04 - 0.24 - 0.03 - 0.11, abs=1e-12)
@@ -294,7 +295,8 @@ def test_reach_and_weakest_servo_of_the_demo(greenhouse):
 
 def test_demo_checks_pass_and_a_weak_servo_fails(greenhouse):
     checks = design_checks(greenhouse)
-    assert [c.subject for c in checks] == ["arm joint lift", "arm joint turn", "arm joint tilt"]
+    assert [c.subject for c in checks] == ["arm joint level roll", "arm joint level pitch", "arm joint lift",
+                                           "arm joint turn", "arm joint tilt"]
     assert all(c.status == "pass" for c in checks)
     text = (EXAMPLES / "greenhouse_tray_3cable.toml").read_text()
     weak = loads_design(text.replace('rated_torque = "1.0 N*m"', 'rated_torque = "0.5 N*m"'))
@@ -402,7 +404,7 @@ def test_levelling_keeps_the_base_level(sander_arm_design):
 # --------------------------------------------------------------------------------------
 def test_every_problem_in_the_arm_section_is_reported():
     text = (EXAMPLES / "greenhouse_tray_3cable.toml").read_text()
-    bad = (text.replace('mount = "0, 0, -0.04 m"', 'mount = "0, 0, -4 kg"')
+    bad = (text.replace('mount = "0, 0, 0 m"', 'mount = "0, 0, -4 kg"')
                .replace('alpha = "90 deg"', 'alpha = "90 mm"')
                .replace('stall_torque = "0.9 N*m"', 'stall_torque = "0.1 N*m"')
                .replace('home = "80 mm"', 'home = "300 mm"')
@@ -412,8 +414,8 @@ def test_every_problem_in_the_arm_section_is_reported():
     with pytest.raises(DesignError) as info:
         loads_design(bad)
     paths = {p.path for p in info.value.problems}
-    assert {"arm.mount", "arm.joints[1].alpha", "arm.joints[1].stall_torque", "arm.joints[0].home",
-            "arm.joints[1].name", "arm.joints[2].rated_force", "arm.joints[2].rated_torque",
+    assert {"arm.mount", "arm.joints[3].alpha", "arm.joints[3].stall_torque", "arm.joints[2].home",
+            "arm.joints[3].name", "arm.joints[4].rated_force", "arm.joints[4].rated_torque",
             "arm.gripper.opening", "arm.gripper.colour"} <= paths
     msg = str(info.value)
     assert "wrong dimension" in msg and "within lower .. upper" in msg

@@ -331,6 +331,8 @@ def test_arm_view_pivots_about_the_tip(state):
     tip = np.array([view.pivot_fig.data[3].x[0], view.pivot_fig.data[3].y[0], view.pivot_fig.data[3].z[0]])
     assert np.allclose(tip, view.result.pivot.achieved[0], atol=1e-9)
     assert "weakest servo" in view.summary.value
+    # the real tilt of the point platform at the pivot pose (cablekit.suspended), levelled arm
+    assert view.result.real is not None and "real platform tilt at this pose" in view.summary.value
     no_arm = ArmReachView(DesignState(EXAMPLES / "workshop_camera_4cable.toml"))
     assert no_arm.result is None and "no [arm]" in no_arm.status.value
 

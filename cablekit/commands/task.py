@@ -14,7 +14,9 @@ DESCRIPTION = (
     "and 'tool tilt [deg]', 'gripper' open/closed after arriving, optional columns named like the arm's reach "
     "joints, and for rigid platforms 'platform roll/pitch/yaw [deg]'). Solves the platform pose of each target "
     "so the tool tip lands on it, and checks every target and the straight moves between them for reach, "
-    "interference with obstacles, cable tensions (arm weight, offset and payload counted) and servo loads. "
+    "interference with obstacles, cable tensions (arm weight, offset and payload counted), servo loads and, for "
+    "a point platform, its real tilt at the targets (it swings under the arm's weight) and the tool-tip error "
+    "that causes. "
     "Prints the first failing step and why; exit code 4 when a step fails, 3 on bad input. The design needs "
     "an [arm] section.")
 

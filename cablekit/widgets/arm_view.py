@@ -1,5 +1,6 @@
 """Arm reach view: the reach envelope coloured by manipulability or the weakest servo's load,
-and a tool-tip pivot demonstration (the platform moves while the wrist turns, the tip stays).
+and a tool-tip pivot demonstration (the platform moves while the wrist turns, the tip stays),
+with the real tilt of a point platform at that pose (:mod:`cablekit.suspended`).
 
 The envelope is :func:`cablekit.arm.reach` drawn by its own ``.figure()``; the pivot is
 :func:`cablekit.tooltip.pivot` for the tip at the centre of the task box, with the arm drawn
@@ -14,7 +15,7 @@ import ipywidgets as W
 import numpy as np
 
 from ..kinematics import cable_vectors, unit_vectors
-from .base import NotAvailable, Panel
+from .base import NotAvailable, Panel, optional_module
 from .figure import PlotFigure, show_figure
 from .results import arm_reach_result, need
 from .state import DesignState
@@ -35,6 +36,7 @@ class ArmSnapshot:
     pivot: object
     sweep: object
     polyline: np.ndarray
+    real: object = None  # cablekit.suspended.SuspendedResult at the pivot pose (point platforms), or None
 
 
 class ArmReachView(Panel):
@@ -84,7 +86,11 @@ class ArmReachView(Panel):
         piv = tooltip.pivot(design, tip, roll=roll, tilt=tilt)
         sweep = tooltip.pivot(design, tip, roll=np.radians(np.linspace(-180.0, 180.0, _SWEEP)), tilt=tilt)
         line = tooltip.arm_world_polyline(design, piv.platform_poses, piv.joints)[0]
-        return ArmSnapshot(reach=reach, pivot=piv, sweep=sweep, polyline=line)
+        sus = optional_module("suspended")  # the real tilt the point model assumes away
+        real = None
+        if sus is not None and sus.tilt_matters(design):
+            real = sus.suspended_poses(design, piv.platform_poses[:, :3], joints=piv.joints, holding=True)
+        return ArmSnapshot(reach=reach, pivot=piv, sweep=sweep, polyline=line, real=real)
 
     def draw(self, snap: ArmSnapshot) -> None:
         d = self.state.design
@@ -114,4 +120,8 @@ class ArmReachView(Panel):
             f"pivot: over a full wrist turn the platform moves within {span:.1f} mm while the tip stays within "
             f"{err:.1e} m of its target; " + ("every pose reachable (joints within limits, platform inside the frame)"
                                               if ok else "some poses are NOT reachable (joint limits or frame)")]
+        if snap.real is not None:
+            lines.append(f"real platform tilt at this pose, payload held: {np.degrees(snap.real.tilt[0]):.1f} deg; "
+                         f"the tool tip lands {1e3 * snap.real.tip_error[0]:.1f} mm from where the level platform "
+                         "would put it (cablekit.suspended)")
         self.summary.value = summary_block(lines)

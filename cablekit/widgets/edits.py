@@ -114,7 +114,12 @@ def with_winch_count(design: Design, count: int) -> Design:
     exits = tuple(Exit(name=names[i], position=(float(xy[i, 0]), float(xy[i, 1]), height),
                        pulley_diameter=first.pulley_diameter, drum_distance=first.drum_distance)
                   for i in range(count))
-    platform = replace(design.platform, attachments=tuple((0.0, 0.0, 0.0) for _ in range(count)))
+    built = design.platform.built_attachments  # stated attachments (cablekit.suspended): one per cable
+    if built and any(b != built[0] for b in built):
+        raise EditError("number of winches: this platform states separate attachments, one per cable; "
+                        "edit them in the design file")
+    platform = replace(design.platform, attachments=tuple((0.0, 0.0, 0.0) for _ in range(count)),
+                       built_attachments=tuple(built[0] for _ in range(count)) if built else ())
     winches = tuple(design.winches[i] if i < design.m else design.winches[0] for i in range(count))
     return replace(design, frame=replace(design.frame, exits=exits), platform=platform, winches=winches)
 
