@@ -1,0 +1,427 @@
+"""Sweeps and multi-objective search: the sweep-file grammar, variants, the evaluator on a rig
+whose optimum is known in closed form, Pareto sorting, resuming, Dask against serial, the
+``sweep``/``best`` commands and the review sheet's "how this design was chosen" section."""
+
+from __future__ import annotations
+
+import math
+import textwrap
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from cablekit.cli import main
+from cablekit.design import load_design
+from cablekit.sweep import (METRICS, SweepError, choose_best, grid_variants, load_results, load_sweep, loads_sweep,
+                            non_dominated_sort, parse_path, run_sweep, spec_of_results, variant_document,
+                            write_variant_design)
+
+ROOT = Path(__file__).resolve().parents[1]
+EXAMPLES = ROOT / "examples"
+G0 = 9.80665  # standard gravity [m/s^2] (ISO 80000-3)
+
+# A symmetric rig: four exits at the corners of a 2 m square at height H, one task point at the
+# centre, 0.5 m high; 2.5 kg moving mass; t_min 5 N; t_max 15 N from the motor:
+# 0.315 N*m * gear 1 * efficiency 1 / pitch radius (40 mm + 2 mm) / 2 = 15.0 N.
+RIG = """\
+format = "cablekit-design/1"
+[meta]
+name = "symmetric four-cable test rig"
+[frame]
+[[frame.exits]]
+name = "A"
+position = "0, 0, 1.5 m"
+[[frame.exits]]
+name = "B"
+position = "2, 0, 1.5 m"
+[[frame.exits]]
+name = "C"
+position = "2, 2, 1.5 m"
+[[frame.exits]]
+name = "D"
+position = "0, 2, 1.5 m"
+[platform]
+kind = "point"
+mass = "1.5 kg"
+[cable]
+diameter = "2 mm"
+breaking_force = "2 kN"
+axial_stiffness = "200 kN"
+mass_per_length = "0.02 kg/m"
+min_tension = "5 N"
+[winch]
+drum_diameter = "40 mm"
+drum_width = "40 mm"
+flange_diameter = "60 mm"
+grooved = true
+gear_ratio = 1
+efficiency = 1.0
+encoder_lines = 500
+decoding = 4
+deadband_counts = 1
+count_rate_limit = "500 kHz"
+motor_rated_torque = "0.315 N*m"
+motor_peak_torque = "0.5 N*m"
+motor_rated_speed = "3000 rpm"
+brake = true
+dead_wraps = 3
+[payload]
+mass = "1.0 kg"
+[task]
+points = ["1, 1, 0.5 m"]
+speed = "0.2 m/s"
+acceleration = "0.5 m/s^2"
+[home]
+position = "1, 1, 0.5 m"
+"""
+MG = 2.5 * G0  # [N]
+T_MIN, T_MAX = 5.0, 15.0  # [N]
+R_H = math.sqrt(2.0)  # horizontal distance from the task point to each exit [m]
+
+HEAD = """\
+format = "cablekit-sweep/1"
+design = "rig.toml"
+[evaluate]
+step = "100 mm"
+accuracy_builds = 20
+accuracy_max_poses = 10
+"""
+
+
+def _hand_tension(height):
+    """Each cable's tension at the centre point, exits ``height`` above it [N].
+
+    Equilibrium of a particle under four symmetric concurrent forces (Beer, Johnston et al.,
+    Vector Mechanics for Engineers: Statics, ch. 2, equilibrium of a particle):
+    4 T sin(alpha) = m g with sin(alpha) = h / sqrt(h^2 + r^2).  The max-margin distribution
+    keeps the symmetric one (the null-space direction (1, -1, 1, -1) only lowers the margin).
+    """
+    h = np.asarray(height, float)
+    return MG * np.sqrt(h**2 + R_H**2) / (4.0 * h)
+
+
+def _hand_optimum_height() -> float:
+    """Frame height with the largest margin min(T - t_min, t_max - T): T = (t_min + t_max) / 2,
+    so sin(alpha*) = m g / (2 (t_min + t_max)) and h* = r tan(alpha*) (from the formula above)."""
+    s = MG / (2.0 * (T_MIN + T_MAX))
+    return 0.5 + R_H * s / math.sqrt(1.0 - s * s)
+
+
+@pytest.fixture()
+def rig_folder(tmp_path):
+    (tmp_path / "rig.toml").write_text(RIG)
+    return tmp_path
+
+
+def _spec(folder: Path, body: str, name: str = "s.toml"):
+    path = folder / name
+    path.write_text(HEAD + textwrap.dedent(body))
+    return load_sweep(path)
+
+
+HEIGHT_GRID = """
+[[parameter]]
+name = "height"
+path = "frame.exits[*].position[2]"
+range = ["0.9 m", "2.9 m"]
+step = "20 mm"
+[objectives]
+tension_margin = "max"
+"""
+
+
+# --------------------------------------------------------------------------------------
+# the grammar: paths, units, links, conditions
+# --------------------------------------------------------------------------------------
+def test_paths_parse_by_the_small_grammar_and_nothing_else():
+    assert parse_path("frame.exits[*].position[2]") == (("frame", ()), ("exits", ("*",)), ("position", (2,)))
+    assert parse_path("winch.gear_ratio") == (("winch", ()), ("gear_ratio", ()))
+    for bad in ("winch.gear_ratio + 1", "__import__('os')", "frame.exits[-1]", "frame..exits", "", "a[1:2]"):
+        with pytest.raises(ValueError):
+            parse_path(bad)
+
+
+@pytest.mark.parametrize("body, field, words", [
+    ('[[parameter]]\nname = "h"\npath = "frame.exit[*].position[2]"\nvalues = ["2 m"]\n', "parameter[0] (h).path",
+     "no field 'exit'"),
+    ('[[parameter]]\nname = "h"\npath = "frame.exits[7].position[2]"\nvalues = ["2 m"]\n', "parameter[0] (h).path",
+     "index 0 to 3"),
+    ('[[parameter]]\nname = "h"\npath = "frame.exits[*].position[2]"\nvalues = ["2 kg"]\n', "parameter[0] (h).values",
+     "unit of the field"),
+    ('[[parameter]]\nname = "g"\npath = "winch.gear_ratio"\nvalues = ["8 mm"]\n', "parameter[0] (g).values[0]",
+     "takes no unit"),
+    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nrange = ["40 mm", "30 mm"]\n', "parameter[0] (d).range",
+     "low below high"),
+    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n[[link]]\npath = "winch.gear_ratio"\n'
+     'from = "d"\n', "link[0].path", "unit of parameter 'd'"),
+    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n[constraints]\n'
+     'tension_margin = ">= 2 m"\n', "constraints.tension_margin", "wrong dimension"),
+    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n[objectives]\nbeauty = "max"\n',
+     "objectives.beauty", "a metric"),
+])
+def test_bad_paths_and_units_get_field_named_errors(rig_folder, body, field, words):
+    if "[objectives]" not in body:
+        body += '[objectives]\ntension_margin = "max"\n'
+    with pytest.raises(SweepError) as err:
+        _spec(rig_folder, body)
+    text = str(err.value)
+    assert field in text and words in text, text
+
+
+def test_bad_sweep_file_exits_3_naming_the_field(rig_folder, tmp_path, capsys):
+    (rig_folder / "bad.toml").write_text(HEAD + '[[parameter]]\nname = "h"\npath = "winch.gear_ratio"\n'
+                                         'values = ["8 m"]\n[objectives]\ncoverage = "max"\n')
+    assert main(["sweep", str(rig_folder / "bad.toml"), "-o", str(tmp_path / "out"), "--serial"]) == 3
+    assert "parameter[0] (h).values[0]" in capsys.readouterr().err
+    assert not (tmp_path / "out" / "results.parquet").exists()
+
+
+def test_wildcards_and_links_edit_the_raw_document(rig_folder):
+    spec = _spec(rig_folder, """
+        [[parameter]]
+        name = "height"
+        path = "frame.exits[*].position[2]"
+        values = ["1800 mm"]
+        [[parameter]]
+        name = "east"
+        paths = ["frame.exits[1].position[0]", "frame.exits[2].position[0]"]
+        values = ["2.5 m"]
+        [[link]]
+        paths = ["frame.exits[0].position[0]", "frame.exits[3].position[0]"]
+        from = "east"
+        scale = -1.0
+        offset = "2 m"
+        [[link]]
+        path = "winch.flange_diameter"
+        from = "height"
+        scale = 0.01
+        offset = "30 mm"
+        [objectives]
+        tension_margin = "max"
+        """)
+    (v,) = grid_variants(spec)
+    doc = variant_document(spec, v.values)
+    from cablekit.design import design_from_dict
+
+    d = design_from_dict(doc)
+    assert np.allclose(d.exits[:, 2], 1.8)  # "all four exit heights equal"
+    assert np.allclose(d.exits[:, 0], [-0.5, 2.5, 2.5, -0.5])  # -1 * 2.5 m + 2 m on the west side
+    assert d.winches[0].flange_diameter == pytest.approx(0.01 * 1.8 + 0.030, rel=1e-12)
+    assert spec.base["frame"]["exits"][0]["position"] == "0, 0, 1.5 m"  # the base is untouched
+
+
+def test_an_invalid_variant_is_recorded_with_its_reason_and_the_sweep_goes_on(rig_folder, tmp_path):
+    spec = _spec(rig_folder, """
+        [[parameter]]
+        name = "gear"
+        path = "winch.gear_ratio"
+        values = [-2, 1]
+        [objectives]
+        tension_margin = "max"
+        """)
+    res = run_sweep(spec, tmp_path / "out", serial=True)
+    t = res.table.set_index("param:gear")
+    assert not t.loc[-2.0, "valid"] and "winch.gear_ratio" in t.loc[-2.0, "reason"]
+    assert np.isnan(t.loc[-2.0, "tension_margin"]) and t.loc[-2.0, "rank"] == -1
+    assert t.loc[1.0, "valid"] and t.loc[1.0, "pareto"]
+
+
+# --------------------------------------------------------------------------------------
+# optima known by hand
+# --------------------------------------------------------------------------------------
+def test_grid_finds_the_frame_height_of_largest_tension_margin(rig_folder, tmp_path):
+    spec = _spec(rig_folder, HEIGHT_GRID)
+    res = run_sweep(spec, tmp_path / "out", serial=True)
+    t = res.table
+    h = t["param:height"].to_numpy() - 0.5
+    T = _hand_tension(h)
+    # every variant's margin is the closed form min(T - t_min, t_max - T) (rounding only)
+    assert np.allclose(t["tension_margin"], np.minimum(T - T_MIN, T_MAX - T), rtol=0, atol=1e-9)
+    best, rule = choose_best(t, res.meta)
+    assert abs(best["param:height"] - _hand_optimum_height()) <= 0.010 + 1e-12  # half the 20 mm grid step
+    assert "largest tension_margin" in rule
+
+
+def test_nsga2_finds_the_same_optimum_over_a_continuous_height(rig_folder, tmp_path):
+    search = '[search]\nmethod = "nsga2"\npopulation = 10\ngenerations = 10\nseed = 2\n'
+    (rig_folder / "n.toml").write_text(HEAD + search + HEIGHT_GRID.replace('step = "20 mm"', ""))
+    spec = load_sweep(rig_folder / "n.toml")
+    res = run_sweep(spec, tmp_path / "out", serial=True)
+    assert len(res.table) <= 100 and res.evaluated == len(res.table)
+    best, _ = choose_best(res.table, res.meta)
+    assert abs(best["param:height"] - _hand_optimum_height()) < 0.01  # [m] 10 generations of 10 on one variable
+
+
+def test_a_monotone_objective_peak_torque_falls_as_one_over_the_gear_ratio(rig_folder, tmp_path):
+    spec = _spec(rig_folder, """
+        [[parameter]]
+        name = "gear"
+        path = "winch.gear_ratio"
+        values = [1, 2, 3, 5, 8]
+        [objectives]
+        peak_motor_torque = "min"
+        """)
+    res = run_sweep(spec, tmp_path / "out", serial=True)
+    t = res.table.sort_values("param:gear")
+    i = t["param:gear"].to_numpy()
+    tau = t["peak_motor_torque"].to_numpy()
+    # torque through a gear train: tau_motor = F r / (i eta) (Shigley's Mechanical Engineering
+    # Design, 10th ed., 2015, ch. 13, gear trains); the cable force does not depend on i here
+    assert np.allclose(tau * i, tau[0] * i[0], rtol=1e-12)
+    best, _ = choose_best(t, res.meta)
+    assert best["param:gear"] == 8 and bool(t["pareto"].sum() == 1)
+
+
+# --------------------------------------------------------------------------------------
+# non-dominated sorting
+# --------------------------------------------------------------------------------------
+def test_non_dominated_sort_on_a_hand_worked_example():
+    # minimise both; worked by hand: a(1,5) b(2,3) c(4,1) are not dominated; d(3,4) is dominated by b;
+    # e(4,4) by b and d; f(5,5) by everything; g(2,3) equals b (neither dominates: same front)
+    F = np.array([[1, 5], [2, 3], [4, 1], [3, 4], [4, 4], [5, 5], [2, 3]], float)
+    fronts = [sorted(f.tolist()) for f in non_dominated_sort(F)]
+    assert fronts == [[0, 1, 2, 6], [3], [4], [5]]
+
+
+def test_non_dominated_sort_matches_pymoo_on_random_sets():
+    from pymoo.util.nds.non_dominated_sorting import NonDominatedSorting  # reference: pymoo (Blank and Deb 2020)
+
+    rng = np.random.default_rng(7)
+    for k in (2, 3):
+        F = np.round(rng.random((120, k)) * 10) / 10  # ties included
+        ours = [sorted(f.tolist()) for f in non_dominated_sort(F)]
+        ref = [sorted(f.tolist()) for f in NonDominatedSorting().do(F)]
+        assert ours == ref
+
+
+# --------------------------------------------------------------------------------------
+# resuming
+# --------------------------------------------------------------------------------------
+def test_an_interrupted_sweep_continues_without_recomputing_and_gives_the_same_table(rig_folder, tmp_path):
+    spec = _spec(rig_folder, HEIGHT_GRID.replace('step = "20 mm"', "steps = 12"))
+    whole = run_sweep(spec, tmp_path / "whole", serial=True, chunk=4)
+
+    class Stop(KeyboardInterrupt):
+        pass
+
+    def stop_after_two_chunks(done, total):
+        if done >= 8:
+            raise Stop
+
+    with pytest.raises(Stop):
+        run_sweep(spec, tmp_path / "cut", serial=True, chunk=4, progress=stop_after_two_chunks)
+    assert len(list((tmp_path / "cut" / "parts").glob("part-*.parquet"))) == 2
+    again = run_sweep(spec, tmp_path / "cut", serial=True, chunk=4)
+    assert (again.reused, again.evaluated) == (8, 4)
+    assert again.table.equals(whole.table)
+    third = run_sweep(spec, tmp_path / "cut", serial=True, chunk=4)
+    assert (third.reused, third.evaluated) == (12, 0) and third.table.equals(whole.table)
+    # a damaged part file is not trusted: its variants are computed again
+    part = sorted((tmp_path / "cut" / "parts").glob("part-*.parquet"))[0]
+    part.write_bytes(part.read_bytes()[:50])
+    fourth = run_sweep(spec, tmp_path / "cut", serial=True, chunk=4)
+    assert fourth.evaluated == 4 and fourth.table.equals(whole.table)
+
+
+def test_a_folder_of_another_sweep_is_refused_unless_fresh(rig_folder, tmp_path):
+    a = _spec(rig_folder, HEIGHT_GRID.replace('step = "20 mm"', "steps = 3"), name="a.toml")
+    b = _spec(rig_folder, HEIGHT_GRID.replace('step = "20 mm"', "steps = 4"), name="b.toml")
+    run_sweep(a, tmp_path / "out", serial=True)
+    with pytest.raises(SweepError, match="another sweep"):
+        run_sweep(b, tmp_path / "out", serial=True)
+    res = run_sweep(b, tmp_path / "out", serial=True, fresh=True)
+    assert len(res.table) == 4 and res.reused == 0
+
+
+# --------------------------------------------------------------------------------------
+# Dask
+# --------------------------------------------------------------------------------------
+@pytest.mark.slow
+def test_a_real_two_worker_dask_cluster_gives_the_serial_table(rig_folder, tmp_path):
+    from distributed import LocalCluster
+
+    spec = _spec(rig_folder, """
+        [[parameter]]
+        name = "height"
+        path = "frame.exits[*].position[2]"
+        range = ["1.0 m", "2.6 m"]
+        steps = 9
+        [[parameter]]
+        name = "gear"
+        path = "winch.gear_ratio"
+        values = [-1, 1, 2]
+        [objectives]
+        tension_margin = "max"
+        peak_motor_torque = "min"
+        [constraints]
+        tension_margin = ">= 0 N"
+        """)
+    serial = run_sweep(spec, tmp_path / "serial", serial=True)
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                      dashboard_address=None) as cluster:
+        assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
+        dask = run_sweep(spec, tmp_path / "dask", scheduler=cluster.scheduler_address, chunk=3)
+    assert dask.evaluated == len(serial.table) == 27
+    assert dask.table.equals(serial.table)  # identical, bit for bit
+    assert int((~dask.table["valid"]).sum()) == 9  # the gear ratio -1 rows, recorded, not crashed
+
+
+# --------------------------------------------------------------------------------------
+# the demo sweeps, best, the design file and the review sheet
+# --------------------------------------------------------------------------------------
+def test_demo_sweeps_parse():
+    grid = load_sweep(EXAMPLES / "sweeps" / "workshop_camera_sweep.toml")
+    assert grid.size == 1000 and grid.method == "grid"
+    pareto = load_sweep(EXAMPLES / "sweeps" / "workshop_camera_pareto.toml")
+    assert pareto.method == "nsga2" and [p.name for p in pareto.parameters if p.continuous] == ["exit_height", "east_x"]
+
+
+@pytest.mark.slow
+def test_nsga2_on_the_camera_rig_returns_a_pareto_set_each_written_as_a_reviewable_design(tmp_path):
+    from cablekit.review import build_review
+
+    src = EXAMPLES / "sweeps" / "workshop_camera_pareto.toml"
+    assert main(["sweep", str(src), "-o", str(tmp_path / "res"), "--serial", "--quiet"]) == 0
+    table, meta = load_results(tmp_path / "res")
+    front = table[table["pareto"]]
+    assert len(front) >= 2 and front["meets_constraints"].all()
+    assert (front["coverage"] == 1.0).all() and (front["tension_margin"] >= 1.0).all()
+    F = front[list(meta["objectives"])].to_numpy(float)
+    assert len(non_dominated_sort(F)) == 1  # no member of the front dominates another
+    spec = spec_of_results(tmp_path / "res")
+    for k, (_, row) in enumerate(front.iterrows()):
+        out = write_variant_design(spec, table, meta, row, tmp_path / f"p{k}.toml", rule="test")
+        d = load_design(out)
+        assert d.sections["sweep"].variant == int(row["variant"])
+    assert main(["best", str(tmp_path / "res"), "--write", str(tmp_path / "best.toml")]) == 0
+    best = load_design(tmp_path / "best.toml")
+    prov = best.sections["sweep"]
+    assert prov.pareto_size == len(front) and "smallest peak_motor_torque" in prov.chosen_by
+    html = build_review(best, date="2026-01-01").html
+    assert '<section id="chosen">' in html and "How this design was chosen" in html and prov.file_hash in html
+
+
+def test_best_without_results_or_with_a_bad_metric_exits_3(rig_folder, tmp_path, capsys):
+    assert main(["best", str(tmp_path / "nothing")]) == 3
+    assert "no results.parquet" in capsys.readouterr().err
+    spec = _spec(rig_folder, HEIGHT_GRID.replace('step = "20 mm"', "steps = 3"))
+    run_sweep(spec, tmp_path / "out", serial=True)
+    assert main(["best", str(tmp_path / "out"), "--by", "colour"]) == 3
+    assert "--by" in capsys.readouterr().err
+
+
+def test_a_sweep_section_with_a_wrong_field_is_a_design_error(tmp_path):
+    from cablekit.design import DesignError
+
+    bad = tmp_path / "d.toml"
+    bad.write_text(RIG + '\n[sweep]\nfile = "x"\nvariant = "seven"\n')
+    with pytest.raises(DesignError) as err:
+        load_design(bad)
+    assert "sweep.variant" in str(err.value) and "sweep.file_hash" in str(err.value)
+
+
+def test_metrics_have_units():
+    from cablekit.units import DIMENSIONS
+
+    assert all(m.dimension in DIMENSIONS for m in METRICS.values())
