@@ -101,6 +101,8 @@ __all__ = [
     "evaluate_document",
     "non_dominated_sort",
     "SweepResult",
+    "pareto_figure",
+    "parallel_figure",
     "run_sweep",
     "load_results",
     "choose_best",
@@ -1114,6 +1116,34 @@ def pareto_figure(table, meta, *, x: str | None = None, y: str | None = None):
                                  hovertemplate="variant %{customdata}<br>%{x:.4g}, %{y:.4g}<extra></extra>"))
     fig.update_layout(title=f"Sweep: {y} against {x}", xaxis_title=f"{x} [{METRICS[x].unit or '-'}]",
                       yaxis_title=f"{y} [{METRICS[y].unit or '-'}]", margin=dict(l=60, r=10, t=50, b=50))
+    return fig
+
+
+def parallel_figure(table, meta):
+    """Parallel coordinates: every parameter and objective, one line per valid variant, the
+    Pareto front in red (display units: mm, %, as in :data:`METRICS`)."""
+    import plotly.graph_objects as go
+
+    t = table[table["valid"]]
+    dims = []
+    for c in [c for c in table.columns if c.startswith("param:")]:
+        name = c[6:]
+        unit = meta["parameters"].get(name, {}).get("unit", "")
+        try:
+            vals = t[c].to_numpy(float)
+            dims.append(dict(label=f"{name} [{unit}]" if unit else name, values=vals))
+        except ValueError:  # choices and texts: their position in the list
+            labels = sorted(set(t[c]))
+            dims.append(dict(label=name, values=[labels.index(v) for v in t[c]], tickvals=list(range(len(labels))),
+                             ticktext=labels))
+    for m in list(meta["objectives"]) + [c for c in meta["constraints"] if c not in meta["objectives"]]:
+        f = _DISPLAY.get(METRICS[m].unit, 1.0)
+        dims.append(dict(label=f"{m} [{METRICS[m].unit or '-'}]", values=t[m].to_numpy(float) * f))
+    colour = np.where(t["pareto"], 2, np.where(t["meets_constraints"], 1, 0))
+    fig = go.Figure(go.Parcoords(dimensions=dims, line=dict(
+        color=colour, cmin=0, cmax=2, colorscale=[[0, "#b0b7bf"], [0.5, "#5b8bd0"], [1, "#c0392b"]])))
+    fig.update_layout(title="Sweep: parameters and objectives (red: Pareto front; blue: meets the constraints)",
+                      margin=dict(l=70, r=50, t=70, b=30))
     return fig
 
 

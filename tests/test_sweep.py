@@ -425,3 +425,55 @@ def test_metrics_have_units():
     from cablekit.units import DIMENSIONS
 
     assert all(m.dimension in DIMENSIONS for m in METRICS.values())
+
+
+# --------------------------------------------------------------------------------------
+# the widget, without a browser
+# --------------------------------------------------------------------------------------
+def test_sweep_explorer_plots_the_front_and_loads_a_clicked_design(rig_folder, tmp_path):
+    from plotly.callbacks import Points
+
+    from cablekit.widgets import DesignState
+    from cablekit.widgets.sweep_explorer import SweepExplorer
+
+    spec = _spec(rig_folder, """
+        [[parameter]]
+        name = "height"
+        path = "frame.exits[*].position[2]"
+        range = ["1.0 m", "2.6 m"]
+        steps = 5
+        [[parameter]]
+        name = "gear"
+        path = "winch.gear_ratio"
+        values = [-1, 1, 2]
+        [objectives]
+        tension_margin = "max"
+        peak_motor_torque = "min"
+        """)
+    res = run_sweep(spec, tmp_path / "res", serial=True, sweep_text=(rig_folder / "s.toml").read_text())
+    state = DesignState(rig_folder / "rig.toml")
+    panel = SweepExplorer(state, results=tmp_path / "res")
+    t = res.table
+    assert (panel.x.value, panel.y.value) == ("tension_margin", "peak_motor_torque")
+    front = next(tr for tr in panel.front.data if tr.name == "Pareto front")
+    assert sorted(front.customdata) == sorted(t.loc[t["pareto"], "variant"])
+    by_variant = t.set_index("variant")
+    assert np.allclose(front.x, by_variant.loc[list(front.customdata), "tension_margin"])
+    panel.x.value = "lowest_frequency"  # set a control, read the figure
+    front = next(tr for tr in panel.front.data if tr.name == "Pareto front")
+    assert np.allclose(front.x, by_variant.loc[list(front.customdata), "lowest_frequency"])
+    (par,) = panel.parallel.data
+    assert [d.label for d in par.dimensions][:2] == ["height [m]", "gear"] and len(par.dimensions[0].values) == 10
+    # click the first Pareto point: it is selected and goes to the shared design
+    k = 0
+    v = int(front.customdata[k])
+    front._dispatch_on_click(Points(point_inds=[k], xs=[front.x[k]], ys=[front.y[k]], trace_name=front.name,
+                                    trace_index=2), None)
+    assert panel.selected == v and not panel.to_editor.disabled and "on the Pareto front" in panel.detail.value
+    assert panel.send_to_editor()
+    assert np.allclose(state.design.exits[:, 2], by_variant.loc[v, "param:height"])
+    assert state.design.winches[0].gear_ratio == by_variant.loc[v, "param:gear"]
+    # an invalid variant can be looked at but not loaded
+    bad = int(t.loc[~t["valid"], "variant"].iloc[0])
+    assert panel.select(bad) and panel.to_editor.disabled and "invalid" in panel.detail.value
+    assert not SweepExplorer(state, results=tmp_path / "nothing").load()
