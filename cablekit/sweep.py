@@ -383,6 +383,7 @@ class SweepSpec:
     """A parsed sweep file (see the module notes)."""
 
     source: str
+    folder: Path  # where the sweep file is: its design path is relative to it
     text_hash: str  # SHA-256 of the sweep file's bytes
     design_path: Path
     design_hash: str  # SHA-256 of the base design file's bytes
@@ -539,7 +540,8 @@ def loads_sweep(text: str, *, source: str = "<sweep>", folder: Path | None = Non
         bad("search.method", method, "nsga2 needs at least one parameter with a continuous range = [low, high]")
     if problems:
         raise SweepError(problems, source)
-    spec = SweepSpec(source=source, text_hash=hashlib.sha256(text.encode("utf-8")).hexdigest(),
+    spec = SweepSpec(source=source, folder=folder.resolve(),
+                     text_hash=hashlib.sha256(text.encode("utf-8")).hexdigest(),
                      design_path=design_path, design_hash=design_hash, base=base, parameters=tuple(params),
                      links=tuple(links), objectives=objectives, constraints=tuple(constraints), method=method,
                      population=pop, generations=gens, seed=seed, options=options)
@@ -1112,7 +1114,8 @@ def pareto_figure(table, meta, *, x: str | None = None, y: str | None = None):
         s = table[sel]
         fx, fy = _DISPLAY.get(METRICS[x].unit, 1.0), _DISPLAY.get(METRICS[y].unit, 1.0)
         fig.add_trace(go.Scatter(x=s[x] * fx, y=s[y] * fy, mode="markers", name=name,
-                                 customdata=s["variant"], marker=dict(color=color, size=7 if name == "Pareto front" else 5),
+                                 customdata=s["variant"],
+                                 marker=dict(color=color, size=7 if name == "Pareto front" else 5),
                                  hovertemplate="variant %{customdata}<br>%{x:.4g}, %{y:.4g}<extra></extra>"))
     fig.update_layout(title=f"Sweep: {y} against {x}", xaxis_title=f"{x} [{METRICS[x].unit or '-'}]",
                       yaxis_title=f"{y} [{METRICS[y].unit or '-'}]", margin=dict(l=60, r=10, t=50, b=50))
@@ -1148,7 +1151,8 @@ def parallel_figure(table, meta):
 
 
 def _meta(spec: SweepSpec) -> dict:
-    return {"format": RESULTS_FORMAT, "sweep_file": spec.source, "sweep_hash": spec.hash,
+    return {"format": RESULTS_FORMAT, "sweep_file": spec.source, "sweep_folder": str(spec.folder),
+            "sweep_hash": spec.hash,
             "sweep_file_hash": spec.text_hash, "design_file": str(spec.design_path), "design_hash": spec.design_hash,
             "method": spec.method, "population": spec.population, "generations": spec.generations, "seed": spec.seed,
             "objectives": dict(spec.objectives), "constraints": {c.metric: c.text for c in spec.constraints},
@@ -1394,9 +1398,8 @@ def spec_of_results(folder) -> SweepSpec:
     copy_path = folder / "sweep.toml"
     if not copy_path.exists():
         raise SweepError(f"{folder}: sweep.toml is missing (the copy of the sweep file)")
-    src = Path(meta["sweep_file"])
     spec = loads_sweep(copy_path.read_text(encoding="utf-8"), source=meta["sweep_file"],
-                       folder=src.resolve().parent if src.parent.exists() else folder)
+                       folder=Path(meta["sweep_folder"]))
     if spec.hash != meta["sweep_hash"]:
         raise SweepError(f"{folder}: the base design {spec.design_path} changed since the sweep ran "
                          f"(hash {spec.design_hash[:16]}); run the sweep again")

@@ -153,8 +153,8 @@ def test_paths_parse_by_the_small_grammar_and_nothing_else():
      "takes no unit"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nrange = ["40 mm", "30 mm"]\n', "parameter[0] (d).range",
      "low below high"),
-    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n[[link]]\npath = "winch.gear_ratio"\n'
-     'from = "d"\n', "link[0].path", "unit of parameter 'd'"),
+    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n'
+     '[[link]]\npath = "winch.gear_ratio"\nfrom = "d"\n', "link[0].path", "unit of parameter 'd'"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n[constraints]\n'
      'tension_margin = ">= 2 m"\n', "constraints.tension_margin", "wrong dimension"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n[objectives]\nbeauty = "max"\n',
