@@ -130,6 +130,23 @@ step = "20 mm"
 tension_margin = "max"
 """
 
+# a height grid times three gear ratios, one of them invalid (-1)
+HEIGHT_AND_GEAR = """
+[[parameter]]
+name = "height"
+path = "frame.exits[*].position[2]"
+range = ["1.0 m", "2.6 m"]
+steps = {steps}
+[[parameter]]
+name = "gear"
+path = "winch.gear_ratio"
+values = [-1, 1, 2]
+[objectives]
+tension_margin = "max"
+peak_motor_torque = "min"
+"""
+
+
 
 # --------------------------------------------------------------------------------------
 # the grammar: paths, units, links, conditions
@@ -341,22 +358,7 @@ def test_a_folder_of_another_sweep_is_refused_unless_fresh(rig_folder, tmp_path)
 def test_a_real_two_worker_dask_cluster_gives_the_serial_table(rig_folder, tmp_path):
     from distributed import LocalCluster
 
-    spec = _spec(rig_folder, """
-        [[parameter]]
-        name = "height"
-        path = "frame.exits[*].position[2]"
-        range = ["1.0 m", "2.6 m"]
-        steps = 9
-        [[parameter]]
-        name = "gear"
-        path = "winch.gear_ratio"
-        values = [-1, 1, 2]
-        [objectives]
-        tension_margin = "max"
-        peak_motor_torque = "min"
-        [constraints]
-        tension_margin = ">= 0 N"
-        """)
+    spec = _spec(rig_folder, HEIGHT_AND_GEAR.format(steps=9) + '[constraints]\ntension_margin = ">= 0 N"\n')
     serial = run_sweep(spec, tmp_path / "serial", serial=True)
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
                       dashboard_address=None) as cluster:
@@ -436,20 +438,7 @@ def test_sweep_explorer_plots_the_front_and_loads_a_clicked_design(rig_folder, t
     from cablekit.widgets import DesignState
     from cablekit.widgets.sweep_explorer import SweepExplorer
 
-    spec = _spec(rig_folder, """
-        [[parameter]]
-        name = "height"
-        path = "frame.exits[*].position[2]"
-        range = ["1.0 m", "2.6 m"]
-        steps = 5
-        [[parameter]]
-        name = "gear"
-        path = "winch.gear_ratio"
-        values = [-1, 1, 2]
-        [objectives]
-        tension_margin = "max"
-        peak_motor_torque = "min"
-        """)
+    spec = _spec(rig_folder, HEIGHT_AND_GEAR.format(steps=5))
     res = run_sweep(spec, tmp_path / "res", serial=True, sweep_text=(rig_folder / "s.toml").read_text())
     state = DesignState(rig_folder / "rig.toml")
     panel = SweepExplorer(state, results=tmp_path / "res")

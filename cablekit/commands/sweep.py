@@ -61,6 +61,8 @@ def run(args) -> int:
 
     if args.workers is not None and args.workers < 1:
         raise InputError(f"--workers: at least 1, got {args.workers}")
+    if args.scheduler and args.workers:
+        raise InputError("--workers sizes the local cluster; an existing cluster (--scheduler) has its own workers")
     if args.serial and (args.scheduler or args.workers):
         raise InputError("--serial runs without Dask: drop --scheduler/--workers")
     out = Path(args.output)
