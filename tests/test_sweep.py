@@ -244,6 +244,34 @@ def test_an_invalid_variant_is_recorded_with_its_reason_and_the_sweep_goes_on(ri
     assert t.loc[1.0, "valid"] and t.loc[1.0, "pareto"]
 
 
+def test_a_choice_sets_several_fields_at_once(rig_folder, tmp_path):
+    spec = _spec(rig_folder, """
+        [[parameter]]
+        name = "rope"
+        [parameter.choices.thin]
+        "cable.diameter" = "2 mm"
+        "cable.breaking_force" = "2 kN"
+        [parameter.choices.thick]
+        "cable.diameter" = "3 mm"
+        "cable.breaking_force" = "5000 N"
+        [[parameter]]
+        name = "grooved"
+        path = "winch.grooved"
+        values = [true, false]
+        [objectives]
+        rope_design_factor = "max"
+        """)
+    t = run_sweep(spec, tmp_path / "out", serial=True).table.set_index(["param:rope", "param:grooved"])
+    assert t["valid"].all() and len(t) == 4
+    # the same highest tension on both ropes (t_max does not bind at this point), so the design
+    # factors are in the ratio of the breaking forces, 5 kN / 2 kN
+    ratio = t.loc[("thick", True), "rope_design_factor"] / t.loc[("thin", True), "rope_design_factor"]
+    assert ratio == pytest.approx(2.5, rel=1e-12)
+    with pytest.raises(SweepError, match="no field 'diametre'"):
+        _spec(rig_folder, '[[parameter]]\nname = "rope"\n[parameter.choices.a]\n"cable.diametre" = "2 mm"\n'
+                          '[objectives]\ncoverage = "max"\n', name="bad.toml")
+
+
 # --------------------------------------------------------------------------------------
 # optima known by hand
 # --------------------------------------------------------------------------------------
