@@ -142,6 +142,7 @@ def main() -> int:
              f"{cores} cores, {platform.machine()}",
              f"# sweep: {SWEEP.relative_to(ROOT)}, {spec.size} variants (4-cable workshop camera rig)",
              f"# evaluation options: {spec.options_text()}",
+             f"# load average at the end (1, 5, 15 min): {', '.join(f'{x:.1f}' for x in os.getloadavg())}",
              f"# {'run':<58} {'start-up [s]':>12} {'sweep [s]':>10} {'variants/s':>11} {'vs 1 worker':>12} "
              f"{'identical table':>16}"]
     for r in runs:
