@@ -288,6 +288,16 @@ def test_grid_finds_the_frame_height_of_largest_tension_margin(rig_folder, tmp_p
     assert "largest tension_margin" in rule
 
 
+def test_constraints_keep_exactly_the_heights_the_closed_form_allows(rig_folder, tmp_path):
+    spec = _spec(rig_folder, HEIGHT_GRID + '[constraints]\ntension_margin = ">= 4 N"\n')
+    t = run_sweep(spec, tmp_path / "out", serial=True).table
+    T = _hand_tension(t["param:height"].to_numpy() - 0.5)
+    allowed = np.minimum(T - T_MIN, T_MAX - T) >= 4.0  # 9 N <= T <= 11 N (formula above)
+    assert 0 < allowed.sum() < len(t) - 10  # some heights pass, most fail
+    assert np.array_equal(t["meets_constraints"].to_numpy(), allowed)
+    assert set(t.loc[t["pareto"], "variant"]) <= set(t.loc[allowed, "variant"])
+
+
 def test_nsga2_finds_the_same_optimum_over_a_continuous_height(rig_folder, tmp_path):
     search = '[search]\nmethod = "nsga2"\npopulation = 10\ngenerations = 10\nseed = 2\n'
     (rig_folder / "n.toml").write_text(HEAD + search + HEIGHT_GRID.replace('step = "20 mm"', ""))
@@ -395,6 +405,17 @@ def test_a_real_two_worker_dask_cluster_gives_the_serial_table(rig_folder, tmp_p
     assert dask.evaluated == len(serial.table) == 27
     assert dask.table.equals(serial.table)  # identical, bit for bit
     assert int((~dask.table["valid"]).sum()) == 9  # the gear ratio -1 rows, recorded, not crashed
+
+
+@pytest.mark.slow
+def test_the_command_on_a_local_cluster_gives_the_serial_table(rig_folder, tmp_path, capsys):
+    (rig_folder / "c.toml").write_text(HEAD + HEIGHT_AND_GEAR.format(steps=3))
+    serial = run_sweep(load_sweep(rig_folder / "c.toml"), tmp_path / "serial", serial=True)
+    assert main(["sweep", str(rig_folder / "c.toml"), "-o", str(tmp_path / "dask"), "--workers", "2"]) == 0
+    out = capsys.readouterr()
+    assert "9 variants: 6 valid" in out.out and "100 % 9/9 variants" in out.err  # the summary and the progress bar
+    table, meta = load_results(tmp_path / "dask")
+    assert table.equals(serial.table) and meta["sweep_hash"] == serial.meta["sweep_hash"]
 
 
 # --------------------------------------------------------------------------------------
