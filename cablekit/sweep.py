@@ -323,7 +323,8 @@ class Parameter:
     name; targets : the fields it writes (all get the same value); kind : "quantity", "number",
     "bool", "text" or "choice"; dimension : for quantities; values : the grid (SI floats,
     numbers, bools, texts or choice labels); low, high : the continuous range [SI] (None for
-    lists); choices : label -> {path: raw value} for choice parameters; unit : display unit.
+    lists); integer : whole numbers only (``integer = true``; the search rounds to them);
+    choices : label -> {path: raw value} for choice parameters.
     """
 
     name: str
@@ -616,7 +617,7 @@ def _quantity_values(texts, where, key, dims_allowed) -> tuple[str, list[float]]
 
 
 def _parse_parameter(rp: Mapping, where: str, base) -> Parameter:
-    allowed = {"name", "path", "paths", "values", "range", "steps", "step", "choices"}
+    allowed = {"name", "path", "paths", "values", "range", "steps", "step", "choices", "integer"}
     for key in rp:
         if key not in allowed:
             raise SweepError([Problem(f"{where}.{key}", repr(rp[key]), f"unknown key; allowed here: "
@@ -642,7 +643,9 @@ def _parse_parameter(rp: Mapping, where: str, base) -> Parameter:
                                   "switches or texts)")])
     kind = kinds.pop()
     kind = "number" if kind == "integer" else kind
-    integer = all(t.kind == "integer" for t in targets)
+    integer = rp.get("integer", False)  # whole numbers only (e.g. encoder lines); the search rounds to them
+    if not isinstance(integer, bool) or (integer and kind != "number"):
+        raise SweepError([Problem(f"{where}.integer", repr(integer), "true or false, for a plain-number field")])
     dims_allowed = set.intersection(*(set(t.dims) for t in targets)) if kind == "quantity" else set()
     has_values, has_range = "values" in rp, "range" in rp
     if has_values == has_range:
@@ -661,7 +664,7 @@ def _parse_parameter(rp: Mapping, where: str, base) -> Parameter:
                     raise SweepError([Problem(f"{where}.values[{k}]", repr(v), f"a plain number: the field "
                                               f"{targets[0].text} takes no unit")])
                 if integer and float(v) != int(v):
-                    raise SweepError([Problem(f"{where}.values[{k}]", repr(v), f"a whole number ({targets[0].text})")])
+                    raise SweepError([Problem(f"{where}.values[{k}]", repr(v), "a whole number (integer = true)")])
             return Parameter(name, tuple(targets), "number", None,
                              tuple(int(v) if integer else float(v) for v in vals), integer=integer)
         if kind == "bool":
@@ -854,8 +857,8 @@ def _write(doc, t: Target, value) -> None:
         node[t.key] = format_vector(comps, dim)
     elif t.kind == "quantity":
         node[t.key] = format_quantity(value[1], value[0])
-    elif t.kind == "integer":
-        node[t.key] = int(round(value)) if float(value) == round(value) else float(value)
+    elif t.kind == "integer":  # written as a whole number in the base: kept so when the value is whole
+        node[t.key] = int(value) if float(value).is_integer() else float(value)
     elif t.kind == "number":
         node[t.key] = float(value)
     else:

@@ -204,6 +204,15 @@ def test_wildcards_and_links_edit_the_raw_document(rig_folder):
         name = "east"
         paths = ["frame.exits[1].position[0]", "frame.exits[2].position[0]"]
         values = ["2.5 m"]
+        [[parameter]]
+        name = "gear"
+        path = "winch.gear_ratio"
+        values = [7.5]
+        [[parameter]]
+        name = "lines"
+        path = "winch.encoder_lines"
+        values = [1000]
+        integer = true
         [[link]]
         paths = ["frame.exits[0].position[0]", "frame.exits[3].position[0]"]
         from = "east"
@@ -225,6 +234,8 @@ def test_wildcards_and_links_edit_the_raw_document(rig_folder):
     assert np.allclose(d.exits[:, 2], 1.8)  # "all four exit heights equal"
     assert np.allclose(d.exits[:, 0], [-0.5, 2.5, 2.5, -0.5])  # -1 * 2.5 m + 2 m on the west side
     assert d.winches[0].flange_diameter == pytest.approx(0.01 * 1.8 + 0.030, rel=1e-12)
+    assert d.winches[0].gear_ratio == 7.5  # the base writes 8: a whole number there is no rule
+    assert doc["winch"]["encoder_lines"] == 1000 and isinstance(doc["winch"]["encoder_lines"], int)
     assert spec.base["frame"]["exits"][0]["position"] == "0, 0, 1.5 m"  # the base is untouched
 
 
