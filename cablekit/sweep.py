@@ -894,7 +894,32 @@ def build_variant(spec: SweepSpec, values: Mapping[str, Any]):
 # evaluation of one design (runs on the workers)
 # --------------------------------------------------------------------------------------
 def evaluate_design(design, options: Mapping[str, Any]) -> dict[str, float]:
-    """The figures of :data:`METRICS` for one valid design, with the library's own functions."""
+    """The figures of :data:`METRICS` for one valid design, with the library's own functions.
+
+    Parameters
+    ----------
+    design : Design
+    options : mapping
+        ``step`` workspace grid step [m]; ``accuracy_step`` accuracy grid step [m];
+        ``accuracy_builds`` sampled builds for the 95th percentile; ``accuracy_max_poses``.
+
+    Returns
+    -------
+    dict
+        Metric key -> value in SI (coverage as a share in [0, 1]); NaN where a figure does
+        not exist (e.g. no pose with every cable taut).
+
+    Notes
+    -----
+    Workspace map (:func:`cablekit.workspace.compute_workspace`) -> coverage and least margin;
+    drive sizing on its tensions (:func:`cablekit.drive.size_drives`) -> motor torques and the
+    rope design factor ``MBF / max T``; accuracy map without the Monte Carlo check
+    (:func:`cablekit.accuracy.accuracy_map`) -> the largest 95th-percentile error; stiffness
+    map on the feasible workspace poses (:func:`cablekit.stiffness.stiffness_map`) -> the lowest
+    natural frequency; every check provider on these results -> failed checks.  Rope length
+    per cable: drum-to-exit distance + longest free length over the task grid + dead wraps on
+    the first layer, ``n_dead * pi * (D + d)``.
+    """
     from .accuracy import accuracy_map
     from .checks import FAIL, run_all
     from .drive import size_drives
