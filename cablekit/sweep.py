@@ -1346,6 +1346,8 @@ def _nsga2(spec: SweepSpec, engine: _Engine) -> list[dict]:
         Evaluator().eval(StaticProblem(problem, F=F, G=G), pop)
         algorithm.tell(infills=pop)
         gen += 1
+    if engine.progress is not None:  # duplicates the search skipped: the bar ends at 100 %
+        engine.progress(len(all_rows), len(all_rows))
     return sorted(all_rows.values(), key=lambda r: r["variant"])
 
 

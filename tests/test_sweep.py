@@ -464,6 +464,24 @@ def test_nsga2_on_the_camera_rig_returns_a_pareto_set_each_written_as_a_reviewab
     assert '<section id="chosen">' in html and "How this design was chosen" in html and prov.file_hash in html
 
 
+def test_best_writes_the_chosen_design_and_its_sheet_says_how_it_was_chosen(rig_folder, tmp_path, capsys):
+    from cablekit.review import build_review
+
+    (rig_folder / "g.toml").write_text(HEAD + HEIGHT_GRID.replace('step = "20 mm"', "steps = 6"))
+    assert main(["sweep", str(rig_folder / "g.toml"), "-o", str(tmp_path / "res"), "--serial", "--quiet"]) == 0
+    assert main(["best", str(tmp_path / "res"), "--write", str(tmp_path / "best.toml")]) == 0
+    assert "on the Pareto front" in capsys.readouterr().out
+    best = load_design(tmp_path / "best.toml")
+    table, _ = load_results(tmp_path / "res")
+    top = table.loc[table["tension_margin"].idxmax()]
+    assert best.sections["sweep"].variant == int(top["variant"])
+    assert np.allclose(best.exits[:, 2], top["param:height"])
+    html = build_review(best, date="2026-01-01").html
+    assert '<section id="chosen">' in html and "largest tension_margin" in html
+    plain = build_review(load_design(rig_folder / "rig.toml"), date="2026-01-01").html
+    assert '<section id="chosen">' not in plain  # only a design chosen by a sweep gets the section
+
+
 def test_best_without_results_or_with_a_bad_metric_exits_3(rig_folder, tmp_path, capsys):
     assert main(["best", str(tmp_path / "nothing")]) == 3
     assert "no results.parquet" in capsys.readouterr().err
