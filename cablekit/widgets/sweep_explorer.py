@@ -32,9 +32,15 @@ def demo_sweep() -> Path:
 
 
 def default_results_folder(sweep) -> Path:
-    """A results folder for ``sweep`` outside the project (the temporary folder), one per file
-    path, so that reopening the dashboard reuses what was computed."""
-    key = hashlib.sha256(str(Path(sweep).resolve()).encode()).hexdigest()[:12]
+    """A results folder for ``sweep`` outside the project (the temporary folder), one per sweep
+    hash (sweep file and base design), so that reopening the dashboard reuses what was computed
+    and an edited sweep starts afresh."""
+    from ..sweep import SweepError, load_sweep
+
+    try:
+        key = load_sweep(sweep).hash[:16]
+    except SweepError:  # reported when the sweep is run
+        key = hashlib.sha256(str(Path(sweep).resolve()).encode()).hexdigest()[:16]
     return Path(tempfile.gettempdir()) / "cablekit-sweeps" / f"{Path(sweep).stem}-{key}"
 
 
