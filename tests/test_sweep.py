@@ -544,3 +544,19 @@ def test_sweep_explorer_plots_the_front_and_loads_a_clicked_design(rig_folder, t
     bad = int(t.loc[~t["valid"], "variant"].iloc[0])
     assert panel.select(bad) and panel.to_editor.disabled and "invalid" in panel.detail.value
     assert not SweepExplorer(state, results=tmp_path / "nothing").load()
+
+
+def test_sweep_explorer_runs_a_sweep_file_into_a_folder_of_its_hash(rig_folder, tmp_path):
+    from cablekit.widgets import DesignState
+    from cablekit.widgets.sweep_explorer import SweepExplorer, default_results_folder
+
+    path = rig_folder / "e.toml"
+    path.write_text(HEAD + HEIGHT_GRID.replace('step = "20 mm"', "steps = 3"))
+    first = default_results_folder(path)
+    path.write_text(HEAD + HEIGHT_GRID.replace('step = "20 mm"', "steps = 4"))
+    assert default_results_folder(path) != first  # an edited sweep never shows the old results
+    panel = SweepExplorer(DesignState(rig_folder / "rig.toml"), sweep=path, results=tmp_path / "r", run=True)
+    assert len(panel.table) == 4 and (tmp_path / "r" / "results.parquet").exists()
+    assert "4 variants" in panel.summary.value
+    panel.sweep_file.value = str(rig_folder / "missing.toml")
+    assert not panel.run() and "missing" in panel.message.value
