@@ -32,26 +32,17 @@ SWEEP = ROOT / "examples" / "sweeps" / "workshop_camera_sweep.toml"
 
 
 def _subset(spec, n: int):
-    """The first ``n`` variants' worth of grid: the last parameters shrink first."""
-    from cablekit.sweep import SweepSpec  # noqa: F401  (type only)
-
+    """At most ``n`` variants of the grid: the last parameters lose values first."""
     params = list(spec.parameters)
-    while n < spec.size and params:
-        for k in range(len(params) - 1, -1, -1):
-            size = 1
-            for p in params:
-                size *= len(p.values)
-            if size <= n:
-                break
-            p = params[k]
-            if len(p.values) > 1:
-                keep = max(1, len(p.values) * n // size)
-                params[k] = dataclasses.replace(p, values=p.values[:keep])
-                break
-        spec = dataclasses.replace(spec, parameters=tuple(params))
-        if spec.size <= n:
+    for k in range(len(params) - 1, -1, -1):
+        rest = 1
+        for p in params[:k] + params[k + 1:]:
+            rest *= len(p.values)
+        keep = max(1, min(len(params[k].values), n // rest))
+        params[k] = dataclasses.replace(params[k], values=params[k].values[:keep])
+        if rest * keep <= n:
             break
-    return spec
+    return dataclasses.replace(spec, parameters=tuple(params))
 
 
 def _warm(spec_doc, options):

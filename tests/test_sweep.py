@@ -13,9 +13,8 @@ import pytest
 
 from cablekit.cli import main
 from cablekit.design import load_design
-from cablekit.sweep import (METRICS, SweepError, choose_best, grid_variants, load_results, load_sweep, loads_sweep,
-                            non_dominated_sort, parse_path, run_sweep, spec_of_results, variant_document,
-                            write_variant_design)
+from cablekit.sweep import (METRICS, SweepError, choose_best, grid_variants, load_results, load_sweep,
+                            non_dominated_sort, parse_path, run_sweep, variant_document)
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = ROOT / "examples"
@@ -451,10 +450,10 @@ def test_nsga2_on_the_camera_rig_returns_a_pareto_set_each_written_as_a_reviewab
     assert (front["coverage"] == 1.0).all() and (front["tension_margin"] >= 1.0).all()
     F = front[list(meta["objectives"])].to_numpy(float)
     assert len(non_dominated_sort(F)) == 1  # no member of the front dominates another
-    spec = spec_of_results(tmp_path / "res")
-    for k, (_, row) in enumerate(front.iterrows()):
-        out = write_variant_design(spec, table, meta, row, tmp_path / f"p{k}.toml", rule="test")
-        d = load_design(out)
+    (tmp_path / "front").mkdir()
+    assert main(["best", str(tmp_path / "res"), "--write-front", str(tmp_path / "front")]) == 0
+    for _, row in front.iterrows():
+        d = load_design(tmp_path / "front" / f"variant-{int(row['variant'])}.toml")
         assert d.sections["sweep"].variant == int(row["variant"])
     assert main(["best", str(tmp_path / "res"), "--write", str(tmp_path / "best.toml")]) == 0
     best = load_design(tmp_path / "best.toml")

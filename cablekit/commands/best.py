@@ -20,6 +20,8 @@ def add_arguments(p) -> None:
     p.add_argument("--write", metavar="DESIGN.toml", help="write the chosen design here")
     p.add_argument("--by", metavar="METRIC", help="choose the front's best in this metric (default: first objective)")
     p.add_argument("--variant", type=int, metavar="N", help="write variant N instead")
+    p.add_argument("--write-front", metavar="FOLDER", help="write every design of the Pareto front there "
+                                                            "(variant-N.toml), each to review")
     p.add_argument("--top", type=int, default=15, metavar="N", help="rows of the front to list (default 15)")
 
 
@@ -51,12 +53,20 @@ def run(args) -> int:
     print(f"chosen: variant {int(row['variant'])}: {rule}")
     for m in METRICS:
         print(f"  {m:<20} {metric_display(m, float(row[m])):>12}   {METRICS[m].title}")
-    if args.write:
-        try:
-            spec = spec_of_results(args.results)
+    if args.write_front and not Path(args.write_front).is_dir():
+        raise InputError(f"--write-front: {args.write_front!r} is not an existing folder")
+    try:
+        spec = spec_of_results(args.results) if (args.write or args.write_front) else None
+        if args.write:
             out = write_variant_design(spec, table, meta, row, args.write, rule=rule)
-        except (SweepError, DesignError) as exc:
-            raise InputError(str(exc)) from None
-        print(f"wrote {out}; review it in full: cablekit review {out} -o review.html")
+            print(f"wrote {out}; review it in full: cablekit review {out} -o review.html")
+        if args.write_front:
+            for _, r in front.iterrows():
+                v = int(r["variant"])
+                write_variant_design(spec, table, meta, r, Path(args.write_front) / f"variant-{v}.toml",
+                                     rule=f"variant {v} of the Pareto front of {len(front)} variants")
+            print(f"wrote the {len(front)} designs of the Pareto front to {args.write_front} (variant-N.toml)")
+    except (SweepError, DesignError) as exc:
+        raise InputError(str(exc)) from None
     print(f"  {meta['caution']}")
     return EXIT_OK
