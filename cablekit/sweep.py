@@ -1095,7 +1095,8 @@ class SweepResult:
     table : pandas DataFrame, one row per variant (parameters ``param:NAME`` in SI, ``valid``,
     ``reason``, the metrics of :data:`METRICS` in SI, ``meets_constraints``, ``rank``,
     ``pareto``); folder; evaluated : variants computed in this run; reused : variants read
-    back from earlier runs; meta : what ``results.parquet`` carries (sweep hash, options...).
+    back from earlier runs; meta : what ``results.parquet`` carries (sweep hash, options...);
+    damaged : stored part files that could not be read (their variants were computed again).
     """
 
     table: Any
@@ -1103,6 +1104,7 @@ class SweepResult:
     evaluated: int
     reused: int
     meta: Mapping[str, Any]
+    damaged: tuple[str, ...] = ()
 
     @property
     def pareto(self):
@@ -1117,6 +1119,9 @@ class SweepResult:
                  f"  objectives: {', '.join(f'{k} ({v})' for k, v in meta['objectives'].items())}",
                  "  constraints: " + (", ".join(f"{k} {v}" for k, v in meta["constraints"].items()) or "none"),
                  f"  options: {meta['options_text']}"]
+        if self.damaged:
+            lines.append(f"  {len(self.damaged)} stored part file(s) could not be read and were computed again: "
+                         + ", ".join(self.damaged[:3]))
         bad = t[~t["valid"]]
         if len(bad):
             lines.append(f"  first invalid variant ({len(bad)} in all): #{int(bad['variant'].iloc[0])}: "
@@ -1403,7 +1408,8 @@ def run_sweep(spec: SweepSpec, folder, *, scheduler: str | None = None, workers:
     table = rank_table(_rows_to_frame(rows, spec), spec.objectives, spec.constraints)
     meta = _meta(spec)
     _write_parquet(table, store.folder / "results.parquet", meta)
-    return SweepResult(table=table, folder=store.folder, evaluated=engine.evaluated, reused=engine.reused, meta=meta)
+    return SweepResult(table=table, folder=store.folder, evaluated=engine.evaluated, reused=engine.reused, meta=meta,
+                       damaged=tuple(store.skipped))
 
 
 def load_results(folder) -> tuple[Any, dict]:

@@ -387,6 +387,7 @@ def test_an_interrupted_sweep_continues_without_recomputing_and_gives_the_same_t
     part.write_bytes(part.read_bytes()[:50])
     fourth = run_sweep(spec, tmp_path / "cut", serial=True, chunk=4)
     assert fourth.evaluated == 4 and fourth.table.equals(whole.table)
+    assert fourth.damaged == (part.name + ": ArrowInvalid",) and "could not be read" in "\n".join(fourth.summary())
 
 
 def test_a_folder_of_another_sweep_is_refused_unless_fresh(rig_folder, tmp_path):
