@@ -60,9 +60,12 @@ class SweepExplorer(W.VBox):
         self.state = state
         self.table = self.meta = None
         self.selected: int | None = None
-        self.sweep_file = W.Text(value=str(sweep or ""), description="sweep file", layout=W.Layout(width="520px"))
+        # shown, not typed: a served page must not name files anywhere on the server (set them in
+        # the notebook or through `cablekit serve --design SWEEP.toml`)
+        self.sweep_file = W.Text(value=str(sweep or ""), description="sweep file", disabled=True,
+                                 layout=W.Layout(width="520px"))
         self.folder = W.Text(value=str(results or (default_results_folder(sweep) if sweep else "")),
-                             description="results folder", layout=W.Layout(width="520px"))
+                             description="results folder", disabled=True, layout=W.Layout(width="520px"))
         self.run_button = W.Button(description="Run the sweep here", tooltip="serially, in this kernel; use "
                                    "'cablekit sweep' (Dask) for large sweeps")
         self.load_button = W.Button(description="Load results")
