@@ -1361,7 +1361,11 @@ def _dask_client(scheduler: str | None, workers: int | None):
     from distributed import Client, LocalCluster
 
     if scheduler:
-        return Client(scheduler, timeout="20s"), None
+        try:
+            return Client(scheduler, timeout="20s"), None
+        except (ValueError, OSError) as exc:  # a malformed address, or nobody there
+            raise SweepError(f"scheduler {scheduler!r}: {exc}; expected the address of a running Dask scheduler "
+                             "such as tcp://10.0.0.5:8786") from None
     cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1, processes=True,
                            host="127.0.0.1", dashboard_address=None)
     return Client(cluster), cluster

@@ -185,6 +185,13 @@ def test_bad_paths_and_units_get_field_named_errors(rig_folder, body, field, wor
     assert field in text and words in text, text
 
 
+def test_a_malformed_scheduler_address_exits_3(rig_folder, tmp_path, capsys):
+    (rig_folder / "a.toml").write_text(HEAD + HEIGHT_GRID)
+    for address in ("not an address", "http://127.0.0.1:8786"):
+        assert main(["sweep", str(rig_folder / "a.toml"), "-o", str(tmp_path / "out"), "--scheduler", address]) == 3
+        assert "expected the address of a running Dask scheduler" in capsys.readouterr().err
+
+
 def test_bad_sweep_file_exits_3_naming_the_field(rig_folder, tmp_path, capsys):
     (rig_folder / "bad.toml").write_text(HEAD + '[[parameter]]\nname = "h"\npath = "winch.gear_ratio"\n'
                                          'values = ["8 m"]\n[objectives]\ncoverage = "max"\n')

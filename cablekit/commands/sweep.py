@@ -73,10 +73,8 @@ def run(args) -> int:
         text = Path(args.sweep).read_text(encoding="utf-8")
         res = run_sweep(spec, out, scheduler=args.scheduler, workers=args.workers, serial=args.serial,
                         fresh=args.fresh, sweep_text=text, progress=None if args.quiet else Bar("sweep"))
-    except SweepError as exc:
+    except SweepError as exc:  # also a scheduler address that is malformed or cannot be reached
         raise InputError(str(exc)) from None
-    except OSError as exc:  # e.g. a scheduler that cannot be reached
-        raise InputError(f"--scheduler {args.scheduler}: {exc}" if args.scheduler else str(exc)) from None
     print("\n".join(res.summary()))
     print(f"wrote {out / 'results.parquet'}; choose and write a design with: cablekit best {out} --write best.toml")
     return EXIT_OK
