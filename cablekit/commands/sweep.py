@@ -75,6 +75,8 @@ def run(args) -> int:
                         fresh=args.fresh, sweep_text=text, progress=None if args.quiet else Bar("sweep"))
     except SweepError as exc:  # also a scheduler address that is malformed or cannot be reached
         raise InputError(str(exc)) from None
+    except OSError as exc:  # the results folder cannot be written
+        raise InputError(f"-o {args.output}: {exc.strerror or exc}") from None
     print("\n".join(res.summary()))
     print(f"wrote {out / 'results.parquet'}; choose and write a design with: cablekit best {out} --write best.toml")
     return EXIT_OK
