@@ -137,22 +137,25 @@ class SweepError(ValueError):
 # --------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Metric:
-    """One column of figures: key, dimension (a key of units.DIMENSIONS), display unit, title."""
+    """One column of figures: key, dimension (a key of units.DIMENSIONS), display unit, title,
+    better: "max" or "min" (which way is better when no objective says)."""
 
     key: str
     dimension: str
     unit: str
     title: str
+    better: str = "min"
 
 
 METRICS: dict[str, Metric] = {m.key: m for m in (
-    Metric("coverage", "dimensionless", "%", "share of the task positions inside the wrench-feasible workspace"),
-    Metric("tension_margin", "force", "N", "least tension margin over the task region"),
+    Metric("coverage", "dimensionless", "%", "share of the task positions inside the wrench-feasible workspace",
+           "max"),
+    Metric("tension_margin", "force", "N", "least tension margin over the task region", "max"),
     Metric("peak_motor_torque", "torque", "N*m", "highest motor torque while accelerating, over the winches"),
     Metric("static_motor_torque", "torque", "N*m", "highest static motor torque, over the winches"),
     Metric("p95_error", "length", "mm", "largest 95th-percentile position error over the task region"),
-    Metric("lowest_frequency", "frequency", "Hz", "lowest natural frequency over the feasible task poses"),
-    Metric("rope_design_factor", "dimensionless", "", "least rope design factor (breaking force / tension)"),
+    Metric("lowest_frequency", "frequency", "Hz", "lowest natural frequency over the feasible task poses", "max"),
+    Metric("rope_design_factor", "dimensionless", "", "least rope design factor (breaking force / tension)", "max"),
     Metric("rope_length", "length", "m", "rope bought: drum-to-exit runs, longest free lengths and dead wraps, "
                                          "summed over the cables"),
     Metric("drum_diameter", "length", "mm", "largest bare drum diameter"),
@@ -1463,7 +1466,7 @@ def choose_best(table, meta, *, by: str | None = None, variant: int | None = Non
     if by not in METRICS:
         raise SweepError(f"--by: {by!r} is not a metric; metrics: {', '.join(METRICS)}")
     order = [by] + [m for m in objectives if m != by]
-    sense = {m: objectives.get(m, "min") for m in order}
+    sense = {m: objectives.get(m, METRICS[m].better) for m in order}
     keys = np.lexsort([(-1.0 if sense[m] == "max" else 1.0) * front[m].to_numpy(float) for m in reversed(order)])
     row = front.iloc[int(keys[0])]
     return row, (f"from the Pareto front of {len(front)} variants (objectives: "

@@ -533,6 +533,9 @@ def test_sweep_explorer_plots_the_front_and_loads_a_clicked_design(rig_folder, t
     assert sorted(front.customdata) == sorted(t.loc[t["pareto"], "variant"])
     by_variant = t.set_index("variant")
     assert np.allclose(front.x, by_variant.loc[list(front.customdata), "tension_margin"])
+    front_rows = t[t["pareto"]]
+    by_freq, rule = choose_best(t, res.meta, by="lowest_frequency")  # not an objective: larger is better
+    assert by_freq["lowest_frequency"] == front_rows["lowest_frequency"].max() and "largest" in rule
     panel.x.value = "lowest_frequency"  # set a control, read the figure
     front = next(tr for tr in panel.front.data if tr.name == "Pareto front")
     assert np.allclose(front.x, by_variant.loc[list(front.customdata), "lowest_frequency"])
