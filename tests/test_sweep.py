@@ -13,7 +13,7 @@ import pytest
 
 from cablekit.cli import main
 from cablekit.design import load_design
-from cablekit.sweep import (METRICS, SweepError, choose_best, grid_variants, load_results, load_sweep,
+from cablekit.sweep import (SweepError, choose_best, grid_variants, load_results, load_sweep,
                             non_dominated_sort, parse_path, run_sweep, variant_document)
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -506,12 +506,6 @@ def test_a_sweep_section_with_a_wrong_field_is_a_design_error(tmp_path):
     with pytest.raises(DesignError) as err:
         load_design(bad)
     assert "sweep.variant" in str(err.value) and "sweep.file_hash" in str(err.value)
-
-
-def test_metrics_have_units():
-    from cablekit.units import DIMENSIONS
-
-    assert all(m.dimension in DIMENSIONS for m in METRICS.values())
 
 
 # --------------------------------------------------------------------------------------
