@@ -282,7 +282,7 @@ def resolve_targets(doc: Mapping, path: str, *, field_name: str) -> list[Target]
                 else:
                     walk(item, k + 1, (*where, name, j), f"{here}[{j}]")
             return
-        if isinstance(value, str) and last and len(idx) == 1:  # a vector component
+        if isinstance(value, str) and "," in value and last and len(idx) == 1:  # a vector component
             comps = value.count(",") + 1
             picks = range(comps) if idx[0] == "*" else [idx[0]]
             for j in picks:

@@ -167,6 +167,8 @@ def test_paths_parse_by_the_small_grammar_and_nothing_else():
      "unit of the field"),
     ('[[parameter]]\nname = "g"\npath = "winch.gear_ratio"\nvalues = ["8 mm"]\n', "parameter[0] (g).values[0]",
      "takes no unit"),
+    ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter[0]"\nvalues = ["40 mm"]\n', "parameter[0] (d).path",
+     "neither a list nor a vector"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nrange = ["40 mm", "30 mm"]\n', "parameter[0] (d).range",
      "low below high"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n'
