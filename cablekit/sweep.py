@@ -201,24 +201,22 @@ def parse_path(text: str) -> tuple[tuple[str, tuple], ...]:
 
 
 def _dims_of(value) -> tuple[str, ...]:
-    """Dimensions a quantity text (or a vector text) can be read as; ``("number",)`` for numbers."""
-    if isinstance(value, bool):
-        return ("bool",)
-    if isinstance(value, (int, float)):
-        return ("number",)
+    """Dimensions a quantity text can be read as (a vector text when it has commas); none for
+    anything else."""
     if not isinstance(value, str):
         return ()
     out = []
     for dim in DIMENSIONS:
         if dim == "dimensionless":
             continue
-        for reader in (lambda v: parse_quantity(v, dim), lambda v: parse_vector(v, dim, length=v.count(",") + 1)):
-            try:
-                reader(value)
-            except (UnitError, ValueError):
-                continue
-            out.append(dim)
-            break
+        try:
+            if "," in value:
+                parse_vector(value, dim, length=value.count(",") + 1)
+            else:
+                parse_quantity(value, dim)
+        except (UnitError, ValueError):
+            continue
+        out.append(dim)
     return tuple(out)
 
 
@@ -311,6 +309,8 @@ def _target(text, where, key, component, value, field_name, path) -> Target:
                 raise SweepError([Problem(field_name, path, f"'{text}': the field {value!r} is not a vector with a "
                                           "unit")])
             kind = "vector"
+        elif "," in value and dims:
+            kind = "whole vector"  # only a choice may set it whole; a parameter names a component
         else:
             kind = "quantity" if dims else "text"
     else:
@@ -607,7 +607,7 @@ def _quantity_values(texts, where, key, dims_allowed) -> tuple[str, list[float]]
     """The one dimension every text reads as (among ``dims_allowed``) and the SI values."""
     common = None
     for k, v in enumerate(texts):
-        d = set(_dims_of(v)) if isinstance(v, str) else set()
+        d = set(_dims_of(v)) if isinstance(v, str) and "," not in v else set()
         if not d:
             raise SweepError([Problem(f"{where}.{key}[{k}]", repr(v), "a quantity with a unit such as '2.8 m'")])
         common = d if common is None else common & d
@@ -640,6 +640,10 @@ def _parse_parameter(rp: Mapping, where: str, base) -> Parameter:
     if not isinstance(paths, list) or not paths:
         raise SweepError([Problem(f"{where}.paths", repr(paths), "a non-empty list of paths")])
     targets = [t for p in paths for t in resolve_targets(base, p, field_name=f"{where}.path")]
+    for t in targets:
+        if t.kind == "whole vector":
+            raise SweepError([Problem(f"{where}.path", t.text, f"a vector: name one component, e.g. '{t.text}[2]' "
+                                      "(or set it whole in a choice)")])
     kinds = {("quantity" if t.kind in ("quantity", "vector") else t.kind) for t in targets}
     if len(kinds) != 1:
         raise SweepError([Problem(f"{where}.path", repr(paths), "fields of one kind (all quantities, numbers, "
@@ -735,6 +739,10 @@ def _check_raw_value(t: Target, value, where: str):
     if t.kind in ("quantity", "vector"):
         dim, (si,) = _quantity_values([value], where.rsplit(".", 1)[0], where.rsplit(".", 1)[-1], set(t.dims))
         return (dim, si)
+    if t.kind == "whole vector":  # its length is the design's to check (an invalid variant, not a crash)
+        if not isinstance(value, str) or not any(_parses_vector(value, d) for d in t.dims):
+            raise SweepError([Problem(where, repr(value), f"a vector in the unit of {t.text} such as '0, 3, 2.8 m'")])
+        return value
     if t.kind in ("number", "integer"):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise SweepError([Problem(where, repr(value), f"a plain number ({t.text} takes no unit)")])
@@ -744,6 +752,14 @@ def _check_raw_value(t: Target, value, where: str):
     if t.kind == "text" and not isinstance(value, str):
         raise SweepError([Problem(where, repr(value), "a text")])
     return value
+
+
+def _parses_vector(value: str, dim: str) -> bool:
+    try:
+        parse_vector(value, dim, length=value.count(",") + 1)
+    except UnitError:
+        return False
+    return True
 
 
 def _parse_link(rl, where, base, by_name) -> Link:

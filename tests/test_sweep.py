@@ -169,6 +169,10 @@ def test_paths_parse_by_the_small_grammar_and_nothing_else():
      "takes no unit"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter[0]"\nvalues = ["40 mm"]\n', "parameter[0] (d).path",
      "neither a list nor a vector"),
+    ('[[parameter]]\nname = "e"\npath = "frame.exits[0].position"\nvalues = ["1 m"]\n', "parameter[0] (e).path",
+     "name one component"),
+    ('[[parameter]]\nname = "h"\npath = "winch.drum_diameter"\nvalues = ["1, 2 m"]\n', "parameter[0] (h).values[0]",
+     "a quantity with a unit"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nrange = ["40 mm", "30 mm"]\n', "parameter[0] (d).range",
      "low below high"),
     ('[[parameter]]\nname = "d"\npath = "winch.drum_diameter"\nvalues = ["40 mm"]\n'
@@ -270,9 +274,11 @@ def test_a_choice_sets_several_fields_at_once(rig_folder, tmp_path):
         [parameter.choices.thin]
         "cable.diameter" = "2 mm"
         "cable.breaking_force" = "2 kN"
+        "home.position" = "1, 1, 0.5 m"
         [parameter.choices.thick]
         "cable.diameter" = "3 mm"
         "cable.breaking_force" = "5000 N"
+        "home.position" = "1, 1, 0.6 m"
         [[parameter]]
         name = "grooved"
         path = "winch.grooved"
