@@ -19,15 +19,24 @@ their path in the design file, with units::
     steps = 5
 
     [[parameter]]
-    name = "gear_ratio"
-    path = "winch.gear_ratio"
-    values = [6, 8, 10]
+    name = "drum"
+    path = "winch.drum_diameter"
+    values = ["54 mm", "72 mm", "90 mm"]
 
-    [[link]]                                        # a field that follows a parameter
-    path = "frame.exits[0].home_length"
-    from = "exit_height"
+    [[parameter]]                                   # several fields at once: named choices
+    name = "rope"
+    [parameter.choices."3 mm"]
+    "cable.diameter" = "3 mm"
+    "cable.breaking_force" = "5.4 kN"
+    [parameter.choices."4 mm"]
+    "cable.diameter" = "4 mm"
+    "cable.breaking_force" = "9.6 kN"
+
+    [[link]]                                        # fields that follow a parameter
+    path = "winch.flange_diameter"                  # value = scale * drum + offset
+    from = "drum"
     scale = 1.0
-    offset = "0.2 m"
+    offset = "28 mm"
 
     [objectives]
     peak_motor_torque = "min"

@@ -13,7 +13,7 @@ import pytest
 
 from cablekit.cli import main
 from cablekit.design import load_design
-from cablekit.sweep import (SweepError, choose_best, grid_variants, load_results, load_sweep,
+from cablekit.sweep import (SweepError, choose_best, grid_variants, load_results, load_sweep, loads_sweep,
                             non_dominated_sort, parse_path, run_sweep, variant_document)
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -447,6 +447,17 @@ def test_the_command_on_a_local_cluster_gives_the_serial_table(rig_folder, tmp_p
 # --------------------------------------------------------------------------------------
 # the demo sweeps, best, the design file and the review sheet
 # --------------------------------------------------------------------------------------
+def test_the_example_in_the_module_notes_is_a_working_sweep_file():
+    import cablekit.sweep as sweep
+
+    doc = sweep.__doc__
+    block = doc[doc.index('format = "cablekit-sweep/1"'):doc.index("Paths use the design")]
+    text = "\n".join(line.removeprefix("    ") for line in block.splitlines())
+    spec = loads_sweep(text, folder=EXAMPLES / "sweeps")
+    assert spec.size == 5 * 3 * 2 and spec.parameters[2].kind == "choice"
+    assert spec.constraints[0].limit == 2.0 and spec.objectives == {"peak_motor_torque": "min", "coverage": "max"}
+
+
 def test_demo_sweeps_parse():
     grid = load_sweep(EXAMPLES / "sweeps" / "workshop_camera_sweep.toml")
     assert grid.size == 1000 and grid.method == "grid"
