@@ -434,6 +434,28 @@ def test_a_real_two_worker_dask_cluster_gives_the_serial_table(rig_folder, tmp_p
 
 
 @pytest.mark.slow
+def test_a_dask_run_stopped_midway_keeps_its_chunks_and_continues(rig_folder, tmp_path):
+    from distributed import LocalCluster
+
+    spec = _spec(rig_folder, HEIGHT_AND_GEAR.format(steps=6))
+    serial = run_sweep(spec, tmp_path / "serial", serial=True)
+
+    def stop(done, total):
+        if done >= 6:
+            raise KeyboardInterrupt
+
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                      dashboard_address=None) as cluster:
+        with pytest.raises(KeyboardInterrupt):
+            run_sweep(spec, tmp_path / "dask", scheduler=cluster.scheduler_address, chunk=3, progress=stop)
+        kept = len(list((tmp_path / "dask" / "parts").glob("part-*.parquet")))
+        assert kept >= 2  # every chunk finished before the stop is on disk
+        again = run_sweep(spec, tmp_path / "dask", scheduler=cluster.scheduler_address, chunk=3)
+    assert again.reused == 3 * kept and again.evaluated == 18 - 3 * kept
+    assert again.table.equals(serial.table)
+
+
+@pytest.mark.slow
 def test_the_command_on_a_local_cluster_gives_the_serial_table(rig_folder, tmp_path, capsys):
     (rig_folder / "c.toml").write_text(HEAD + HEIGHT_AND_GEAR.format(steps=3))
     serial = run_sweep(load_sweep(rig_folder / "c.toml"), tmp_path / "serial", serial=True)
