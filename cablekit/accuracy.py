@@ -59,6 +59,7 @@ from typing import Any, Callable, Mapping
 
 import numpy as np
 
+from .limits import MAX_DEADBAND_LENGTH
 from .units import UnitError, parse_quantity, parse_vector
 
 __all__ = [
@@ -74,6 +75,7 @@ __all__ = [
     "MonteCarloCheck",
     "monte_carlo",
     "AccuracyResult",
+    "effective_step",
     "accuracy_map",
     "load_accuracy_map",
     "design_checks",
@@ -232,11 +234,22 @@ def parse_errors_section(raw, add_problem: Callable[[str, Any, str], None], path
             add_problem(full, value, f"at most {shown}: larger errors are outside the small-error model; "
                                      "fix the rig or the design first")
             ok = False
+        elif key in ("deadband_counts", "quantisation_counts") and _count_length(design, v) > MAX_DEADBAND_LENGTH:
+            add_problem(full, value, f"at most {MAX_DEADBAND_LENGTH * 1e3:g} mm of cable ({_count_length(design, v):.3g} m "
+                                     "here): larger errors are outside the small-error model (cablekit.limits)")
+            ok = False
         else:
             values[key] = float(v)
     if not ok:
         return None
     return ErrorBudget(**values, given=frozenset(values))
+
+
+def _count_length(design, counts: float) -> float:
+    """The longest cable length ``counts`` encoder counts stand for on any winch [m]."""
+    from .kinematics import length_per_count
+
+    return float(counts * np.max(length_per_count(design)))
 
 
 def error_budget(design) -> ErrorBudget:
@@ -439,7 +452,8 @@ def _half_widths(design, budget: ErrorBudget) -> np.ndarray:
     lay = _layout(m)
     hw = np.zeros(lay["axial_stiffness"].stop)
     lpc = length_per_count(design)
-    db = np.array([w.deadband_counts for w in design.winches], float) if budget.deadband_counts is None \
+    # the winch's dead band as a +/- half-width (deadband_definition read by Winch.deadband_half_counts)
+    db = np.array([w.deadband_half_counts for w in design.winches], float) if budget.deadband_counts is None \
         else np.full(m, budget.deadband_counts)
     hw[lay["quantisation"]] = budget.quantisation_counts * lpc
     hw[lay["deadband"]] = db * lpc
@@ -482,8 +496,10 @@ def linear_model(design, poses, *, budget: ErrorBudget | None = None, tensions=N
     N, n = q.shape
     m = design.m
     L = cable_lengths(design, q)
-    J = length_jacobian(design, q)
-    Ja = parameter_jacobians(design, q).exits  # (N, m, 3)
+    # a cable of zero length (attachment at its exit) has no direction: NaN derivatives; such a
+    # pose is infeasible ("no solution / singular", see statics.tensions_at) and its numbers are not shown
+    J = np.nan_to_num(length_jacobian(design, q), nan=0.0)
+    Ja = np.nan_to_num(parameter_jacobians(design, q).exits, nan=0.0)  # (N, m, 3)
     Jp = np.linalg.pinv(J)  # (N, n, m)
     h = home_lengths(design)
     # the counts the controller holds fixed: c(L, h, D) = c_cmd, so an error in the home
@@ -686,7 +702,8 @@ def monte_carlo(design, model: LinearModel, rows, *, samples: int = 10_000, seed
     solved = np.empty((P, samples), bool)
     for j, r in enumerate(rows):
         Lact = _actual_lengths(design, model, r, draws)
-        fk = forward_kinematics(design, Lact, guess=model.poses[r], exits=exits, consistency_tol=np.inf)  # warm start: no restarts
+        fk = forward_kinematics(design, Lact, guess=model.poses[r], exits=exits, consistency_tol=np.inf,
+                                starts=1)  # warm start: no restarts
         q = fk.poses
         errors[j] = q - model.poses[r]
         # at a least-squares solution J^T (L(q) - L_act) = 0, so the Gauss-Newton step still to
@@ -723,8 +740,9 @@ class AccuracyResult:
     their directions (columns); random_3sigma (N,) three times the largest random standard
     deviation (a repeatability estimate) [m]; source_ms (N, S) each source's contribution to
     the mean-square position error [m^2]; dominant (N,) index into ``source_keys`` (-1 where
-    infeasible); step (N,) effective motion step: the largest platform move from one count
-    on a single cable [m]; orientation_std, orientation_worst (N, 3) for rigid platforms
+    infeasible); step (N,) effective motion step at the platform: the largest platform move
+    from one effective step (the dead band's width, at least one count) on a single cable,
+    see :func:`effective_step` [m]; orientation_std, orientation_worst (N, 3) for rigid platforms
     [rad] (``None`` for points).
 
     Grid: position_index, orientation_index (N,), grid_shape, grid_step [m], coarsened
@@ -838,7 +856,8 @@ class AccuracyResult:
         lines.append("    dominant source: " + ", ".join(
             f"{self.source_labels[self.source_keys.index(k)]} at {c / nf * 100:.0f} % of poses"
             for k, c in sorted(counts.items(), key=lambda kv: -kv[1])))
-        lines.append(f"  effective motion step (one count on one cable): median {np.median(stp) * mm:.3f} mm, "
+        lines.append(f"  effective motion step at the platform (dead band width on one cable): median "
+                     f"{np.median(stp) * mm:.3f} mm, "
                      f"largest {np.max(stp) * mm:.3f} mm")
         if self.orientation_std is not None:
             ow = self.orientation_worst[self.feasible]
@@ -1051,7 +1070,6 @@ def accuracy_map(design, *, step: float | None = None, budget: ErrorBudget | Non
     poses : evaluate these poses (N, n) instead of the task grid.
     progress : ``progress(stage, done, total)`` callback for long runs.
     """
-    from .kinematics import length_per_count
     from .region import task_poses
 
     budget = error_budget(design) if budget is None else budget
@@ -1089,7 +1107,7 @@ def accuracy_map(design, *, step: float | None = None, budget: ErrorBudget | Non
     ell = np.sqrt(np.clip(evals, 0, None) * k95)
     ms = model.source_contributions()
     dominant = np.argmax(ms, axis=1)
-    step_move = np.max(np.linalg.norm(model.pinv[:, :3, :], axis=1) * length_per_count(design), axis=1)
+    step_move = effective_step(model.pinv, design)
     rnd3 = 3 * np.sqrt(np.clip(np.linalg.eigvalsh(cov_rnd[:, :3, :3])[:, -1], 0, None))
 
     def nanout(a):
@@ -1144,11 +1162,12 @@ def design_checks(design, *, accuracy: AccuracyResult | None = None) -> list:
         stp = float(np.nanmax(np.where(res.feasible, res.step, np.nan))) if np.any(res.feasible) else math.nan
         lim = res.budget.step_fraction * req
         margin, status = judge(stp * mm, lim * mm, upper=True)
-        out.append(Check(key="accuracy_step", subject="task region", title="effective motion step (one count)",
+        out.append(Check(key="accuracy_step", subject="task region", title="effective motion step (dead band)",
                          value=stp * mm, limit=lim * mm, unit="mm", margin=margin, status=status,
                          source=f"{res.budget.step_fraction:g} x required accuracy; "
                                 + BUDGET_KEYS["step_fraction"].source,
-                         detail="largest platform move from one encoder count on a single cable"))
+                         detail="largest platform move from one effective step on a single cable: "
+                                + _step_text(design)))
     if res.monte_carlo is not None:
         ok, _ = res.monte_carlo.validated()
         share = float(ok[:, :3].mean()) if ok.size else 0.0
@@ -1158,6 +1177,36 @@ def design_checks(design, *, accuracy: AccuracyResult | None = None) -> list:
                          source="JCGM 101:2008, section 8 (validation of the GUM uncertainty framework)",
                          detail="share of checked position components whose 95 % interval agrees"))
     return out
+
+
+def effective_step(pinv, design) -> np.ndarray:
+    """Effective motion step at the platform per pose [m], shape (N,).
+
+    ``max_i |J+[:3, i]| s_i``: the largest platform move when one cable changes by its
+    effective step ``s_i`` (:func:`cablekit.drive.cable_step`: the dead band's width in counts,
+    ``2k + 1`` for a +/- k-count band, at least one count, times the length per count).
+
+    Parameters
+    ----------
+    pinv : (N, n, m) pseudo-inverses of the length Jacobian ``J = dL/dq`` [m/m].
+    design : Design
+
+    Notes
+    -----
+    A controller with a +/- k-count dead band stops anywhere within 2k + 1 counts of its
+    target, so commands closer together than that are not resolved (common practice, no
+    source).
+    """
+    from .drive import cable_step
+
+    return np.max(np.linalg.norm(np.asarray(pinv, float)[:, :3, :], axis=1) * cable_step(design), axis=1)
+
+
+def _step_text(design) -> str:
+    parts = sorted({(w.deadband_counts, w.deadband_definition, w.step_counts) for w in design.winches})
+    return "; ".join((f"dead band +/- {k:g} counts -> {sc:g} counts" if how == "plus_minus"
+                      else f"dead band {k:g} counts wide -> {sc:g} counts") for k, how, sc in parts) \
+        + " (deadband_definition in the design file; common practice, no source)"
 
 
 def _dominant_label(res: AccuracyResult) -> str:

@@ -51,6 +51,7 @@ import sympy as sp
 
 from .checks import FAIL, WARN, Check, judge
 from .codegen import GeneratedFunction, generate
+from .limits import MAX_ARM_JOINTS
 
 __all__ = [
     "ROLES",
@@ -321,6 +322,9 @@ def parse_arm_section(raw, add_problem, path: str, design) -> Arm | None:
         c.add(f"{path}.joints", joints_raw if joints_raw is not None else "missing",
               "a list of [[arm.joints]] tables, one per DH row")
         joints_raw = []
+    elif len(joints_raw) > MAX_ARM_JOINTS:
+        c.add(f"{path}.joints", f"{len(joints_raw)} joints", f"at most {MAX_ARM_JOINTS} joints (cablekit.limits)")
+        return None
     seen: set[str] = set()
     for k, jt in enumerate(joints_raw):
         jp = f"{path}.joints[{k}]"

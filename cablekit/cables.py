@@ -33,6 +33,7 @@ References
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -49,6 +50,9 @@ __all__ = [
     "exit_side_tension",
     "SagMap",
     "sag_map",
+    "sag_thresholds",
+    "design_checks",
+    "design_assumptions",
     "SagEquilibrium",
     "tensions_with_sag",
     "RopeEntry",
@@ -608,8 +612,10 @@ class SagMap:
     cable's ``c / (1 + T / EA)`` [m]; length_change = unstretched - straight [m] (rope the winch
     must pay out beyond the straight-cable command); angle_change (N, m): angle between the
     cable force at the platform and the chord [rad]; sag (N, m): largest vertical distance
-    between chord and cable [m]; valid (N, m): taut cable, solved; flagged (N, m): a change
-    above a threshold; length_threshold [m] and angle_threshold [rad] with their sources.
+    between chord and cable [m]; valid (N, m): taut cable, solved; unsolved (N, m): a taut
+    straight cable whose catenary was not found (it would hang slack somewhere);
+    flagged (N, m): a change above a threshold; length_threshold (m,) [m] per cable and
+    angle_threshold [rad] with their sources (see :func:`sag_thresholds`).
     """
 
     poses: np.ndarray
@@ -623,9 +629,10 @@ class SagMap:
     sag: np.ndarray
     valid: np.ndarray
     flagged: np.ndarray
-    length_threshold: float
+    length_threshold: np.ndarray
     angle_threshold: float
     threshold_sources: tuple[str, str]
+    unsolved: np.ndarray | None = None
 
     @property
     def pose_flagged(self) -> np.ndarray:
@@ -634,8 +641,10 @@ class SagMap:
 
     def summary(self) -> list[str]:
         N, m = self.tensions.shape
+        lt = np.atleast_1d(self.length_threshold) * 1e3
+        lt_text = f"{lt.min():.3g} mm" if np.ptp(lt) == 0 else f"{lt.min():.3g} .. {lt.max():.3g} mm"
         lines = [f"sag of {m} cables over {N} poses (elastic catenary, Irvine 1981); thresholds "
-                 f"{self.length_threshold * 1e3:g} mm length, {np.degrees(self.angle_threshold):g} deg direction"]
+                 f"{lt_text} length, {np.degrees(self.angle_threshold):g} deg direction"]
         v = self.valid
         if not np.any(v):
             lines.append("  no pose has every cable taut: nothing to compare")
@@ -699,9 +708,9 @@ def sag_map(design, *, poses=None, step: float | None = None, tensions=None) -> 
     Returns
     -------
     SagMap
-        Flags where the sag changes a cable's unstretched length by more than
-        ``practice.sag_length_threshold`` or its direction at the platform by more than
-        ``practice.sag_angle_threshold``.
+        Flags where the sag changes a cable's unstretched length by more than its length
+        threshold or its direction at the platform by more than ``practice.sag_angle_threshold``
+        (:func:`sag_thresholds`).
 
     Notes
     -----
@@ -743,15 +752,122 @@ def sag_map(design, *, poses=None, step: float | None = None, tensions=None) -> 
         conv[ok] = res.converged
     straight = chord / (1.0 + np.where(ok, t, 0.0) / EA)
     dL = L0 - straight
-    lt = practice_value("sag_length_threshold", design.practice)
-    at = practice_value("sag_angle_threshold", design.practice)
+    lt, at, src = sag_thresholds(design)
     valid = ok & conv
-    flagged = valid & ((np.abs(dL) > lt) | (ang > at))
-    src = tuple(("design file [practice]" if k in design.practice else PRACTICE[k].source)
-                for k in ("sag_length_threshold", "sag_angle_threshold"))
+    flagged = valid & ((np.abs(dL) > lt[None, :]) | (ang > at))
     return SagMap(poses=q, cable_names=tuple(design.cable_names), tensions=t, exit_tensions=Texit,
                   unstretched_length=L0, straight_length=straight, length_change=dL, angle_change=ang, sag=sag,
-                  valid=valid, flagged=flagged, length_threshold=lt, angle_threshold=at, threshold_sources=src)
+                  valid=valid, flagged=flagged, length_threshold=lt, angle_threshold=at, threshold_sources=src,
+                  unsolved=ok & ~conv)
+
+
+def sag_thresholds(design) -> tuple[np.ndarray, float, tuple[str, str]]:
+    """Length thresholds per cable (m,) [m], the angle threshold [rad] and their sources.
+
+    The length threshold is each cable's effective motion step (:func:`cablekit.drive.cable_step`:
+    the dead band's width in counts times the length per count): a sag-induced length change
+    smaller than one step cannot be told from the controller's own resolution, a larger one
+    moves the platform by more than a step.  A ``[practice] sag_length_threshold`` in the
+    design file replaces it (local practice wins).  The angle threshold is
+    ``practice.sag_angle_threshold``.
+    """
+    from .drive import cable_step
+
+    pv = design.practice
+    if "sag_length_threshold" in pv:
+        lt = np.full(design.m, practice_value("sag_length_threshold", pv))
+        lsrc = "design file [practice]"
+    else:
+        lt = cable_step(design)
+        lsrc = ("each cable's effective motion step (dead band width x length per count): sag below it is within "
+                "the controller's own resolution (common practice, no source)")
+    asrc = "design file [practice]" if "sag_angle_threshold" in pv else PRACTICE["sag_angle_threshold"].source
+    return lt, practice_value("sag_angle_threshold", pv), (lsrc, asrc)
+
+
+def _sag_poses(design, workspace=None):
+    """Poses and platform-end tensions to judge sag at: the workspace map's feasible poses and
+    tensions, else the task grid's wrench-feasible poses (:func:`cablekit.statics.tensions_at`)."""
+    if workspace is not None:
+        ok = np.asarray(workspace.feasible, bool)
+        return np.asarray(workspace.poses, float)[ok], np.asarray(workspace.tensions, float)[ok]
+    from .region import task_poses
+    from .statics import tensions_at
+
+    q = task_poses(design).poses
+    res = tensions_at(design, q)
+    return q[res.feasible], res.tensions[res.feasible]
+
+
+def design_checks(design, *, workspace=None) -> list:
+    """Sag checks, one pair per cable, over the wrench-feasible task poses.
+
+    * ``sag_length``: the largest sag-induced change of the cable's length (rope the winch
+      must pay out beyond the straight-cable command).  WARN above the length threshold (the
+      cable's effective motion step, :func:`sag_thresholds`); FAIL above the required
+      accuracy of ``[errors]`` when one is given (the straight-cable command alone then misses
+      by more than the task allows), and FAIL where a taut straight cable has no catenary (it
+      would hang slack).
+    * ``sag_direction``: the largest change of the cable's direction at the platform; WARN
+      above ``practice.sag_angle_threshold`` (straight-cable tensions and stiffness are
+      approximate there).
+    """
+    from .checks import FAIL, PASS, WARN, Check
+
+    q, t = _sag_poses(design, workspace)
+    if len(q) == 0:
+        return []
+    sm = sag_map(design, poses=q, tensions=t)
+    lt, at, (lsrc, asrc) = sag_thresholds(design)
+    budget = design.sections.get("errors")
+    req = getattr(budget, "required_accuracy", None)
+    out = []
+    for j, name in enumerate(sm.cable_names):
+        subject = f"cable {name}"
+        v = sm.valid[:, j]
+        dl = np.where(v, np.abs(sm.length_change[:, j]), -np.inf)
+        k = int(np.argmax(dl))
+        worst = float(dl[k]) if np.any(v) else 0.0
+        at_pose = f"pose {', '.join(f'{x:.3g}' for x in sm.poses[k][:3])} m" if np.any(v) else "no pose"
+        bad = int(np.sum(sm.unsolved[:, j]))
+        if bad:
+            status, limit = FAIL, float(lt[j])
+            detail = (f"at {bad} pose(s) the straight-cable tension cannot hold this cable taut as a catenary (it "
+                      "would hang slack): raise the minimum tension or use a lighter rope")
+        elif req is not None and worst > req:
+            status, limit = FAIL, float(req)
+            detail = (f"sag changes the cable's length by up to {worst * 1e3:.3g} mm at {at_pose}: more than the "
+                      f"required accuracy {req * 1e3:g} mm; compensate sag in the controller or raise the tensions")
+        else:
+            status, limit = (WARN if worst > lt[j] else PASS), float(lt[j])
+            detail = (f"largest at {at_pose}; above the threshold the straight-cable lengths (counts) are off by more "
+                      "than one motion step" + (f"; fails above the required accuracy {req * 1e3:g} mm" if req is not None
+                                                 else ""))
+        src = lsrc if limit == float(lt[j]) else "required_accuracy in the design's [errors] table"
+        out.append(Check(key="sag_length", subject=subject, title="sag: change of cable length", value=worst * 1e3,
+                         limit=limit * 1e3, unit="mm", margin=(limit - worst) * 1e3, status=status, source=src,
+                         detail=detail))
+        da = np.where(v, sm.angle_change[:, j], -np.inf)
+        ka = int(np.argmax(da))
+        worst_a = float(da[ka]) if np.any(v) else 0.0
+        out.append(Check(key="sag_direction", subject=subject, title="sag: change of cable direction at the platform",
+                         value=math.degrees(worst_a), limit=math.degrees(at), unit="deg",
+                         margin=math.degrees(at - worst_a), status=WARN if worst_a > at or not np.any(v) else PASS,
+                         source=asrc,
+                         detail=(f"largest at pose {', '.join(f'{x:.3g}' for x in sm.poses[ka][:3])} m; above the "
+                                 "threshold the straight-cable tensions and stiffness are approximate there")
+                         if np.any(v) else "not judged: no pose where this cable hangs as a solved catenary"))
+    return out
+
+
+def design_assumptions(design, **options) -> list[str]:
+    """The modelling assumptions the sag verdicts rest on."""
+    lt, at, (lsrc, _) = sag_thresholds(design)
+    return ["Sag: each taut cable is an elastic catenary (Irvine 1981) at the straight-cable tension of the "
+            "workspace's feasible poses; the length threshold is "
+            + (f"{lt.min() * 1e3:.3g} mm (design file [practice])" if lsrc.startswith("design file")
+               else f"each cable's effective motion step ({lt.min() * 1e3:.3g} .. {lt.max() * 1e3:.3g} mm)")
+            + f", the direction threshold {math.degrees(at):g} deg."]
 
 
 @dataclass(frozen=True)

@@ -129,7 +129,8 @@ def _predict(design, params, theta, counts, guess):
     bad = ~(step < 1e-9) | ~np.all(np.isfinite(q), axis=1)
     if np.any(bad):
         try:
-            q[bad] = forward_kinematics(design, L[bad], guess=guess[bad], exits=exits, consistency_tol=np.inf).poses
+            q[bad] = forward_kinematics(design, L[bad], guess=guess[bad], exits=exits, consistency_tol=np.inf,
+                                        starts=1).poses
         except KinematicsError:
             q[bad] = np.nan
     return q, exits
@@ -389,7 +390,7 @@ def synthetic_measurements(design, commanded, *, exit_offsets=None, home_offsets
     """Simulated measurements of a rig that differs from ``design`` (for demos and tests).
 
     The controller commands the counts of the nominal design for each pose of ``commanded``
-    (P, n); the deadband leaves each cable anywhere within +/- ``deadband_counts`` of them;
+    (P, n); the deadband leaves each cable anywhere within +/- ``Winch.deadband_half_counts`` of them;
     the true rig has exit points ``a + exit_offsets`` [m], home lengths ``h + home_offsets``
     [m] and drum pitch diameters ``D + d + drum_offsets`` [m]; its pose comes from the forward
     kinematics; the measured position adds Gaussian noise of ``noise`` [m] per coordinate.
@@ -408,10 +409,10 @@ def synthetic_measurements(design, commanded, *, exit_offsets=None, home_offsets
     qc = np.repeat(q, cycles, axis=0)
     c = np.rint(lengths_to_counts(design, cable_lengths(design, qc)))
     if deadband:
-        db = np.array([int(w.deadband_counts) for w in design.winches])
+        db = np.array([int(w.deadband_half_counts) for w in design.winches])  # +/- counts, per its definition
         c = c + rng.integers(-db, db + 1, size=c.shape)
     L = home_lengths(design) + dh + c * length_per_count(design) * (1.0 + dD / pitch)
-    fk = forward_kinematics(design, L, guess=qc, exits=design.exits + da, consistency_tol=np.inf)
+    fk = forward_kinematics(design, L, guess=qc, exits=design.exits + da, consistency_tol=np.inf, starts=1)
     measured = fk.poses[:, :3] + rng.normal(0.0, noise, (len(qc), 3))
     names = [f"P{k + 1}" for k in range(P)] if labels is None else list(labels)
     return Measurements(labels=np.array(np.repeat(names, cycles), dtype=object),

@@ -84,6 +84,7 @@ def worst_status(checks) -> str:
 CHECK_PROVIDERS: list[str] = [
     "cablekit.workspace:design_checks",
     "cablekit.drive:design_checks",
+    "cablekit.cables:design_checks",
     "cablekit.accuracy:design_checks",
     "cablekit.arm:design_checks",
 ]

@@ -10,6 +10,11 @@ and NumPy, so a changed derivation or library never reuses stale code.
 The cache lives in ``$CABLEKIT_CACHE_DIR`` or ``~/.cache/cablekit/codegen``; when that is
 not writable a private temporary folder is used.  :func:`clear_cache` empties both the
 in-memory and the on-disk cache.
+
+Importing a cached file runs it, so the cache is guarded: a folder that another user owns or
+that group or others may write to is refused (:class:`CacheError`), and each module's SHA-256
+is recorded beside it (``.sha256``) when it is written and compared before it is imported; a
+file that does not match is generated again.
 """
 
 from __future__ import annotations
@@ -26,7 +31,14 @@ from typing import Sequence
 import numpy as np
 import sympy as sp
 
-__all__ = ["GeneratedFunction", "generate", "clear_cache", "cache_dir"]
+from .cli import InputError
+
+__all__ = ["GeneratedFunction", "generate", "clear_cache", "cache_dir", "CacheError"]
+
+
+class CacheError(InputError):
+    """The generated-code cache folder is not private to this user (so its code is not trusted);
+    an :class:`~cablekit.cli.InputError`, so the command line exits with code 3."""
 
 _GENERATOR_VERSION = "1"
 _memory: dict[str, "GeneratedFunction"] = {}
@@ -39,7 +51,8 @@ def cache_dir() -> Path:
     env = os.environ.get("CABLEKIT_CACHE_DIR")
     base = Path(env) if env else Path.home() / ".cache" / "cablekit" / "codegen"
     try:
-        base.mkdir(parents=True, exist_ok=True)
+        base.mkdir(mode=0o700, parents=True, exist_ok=True)
+        _check_private(base)
         probe = base / ".write-probe"
         probe.write_text("")
         probe.unlink()
@@ -48,6 +61,38 @@ def cache_dir() -> Path:
         if _fallback_dir is None:
             _fallback_dir = Path(tempfile.mkdtemp(prefix="cablekit-codegen-"))
         return _fallback_dir
+
+
+def _check_private(folder: Path) -> None:
+    """Refuse a cache folder other users could put code into."""
+    st = folder.stat()
+    owner_ok = not hasattr(os, "getuid") or st.st_uid == os.getuid()
+    if not owner_ok or st.st_mode & 0o022:
+        raise CacheError(f"generated-code cache {str(folder)!r} is {'owned by another user' if not owner_ok else 'writable by others'} "
+                         f"(mode {st.st_mode & 0o777:o}); code from it would run as you. Make it private "
+                         f"(chmod go-w {str(folder)!r}) or set CABLEKIT_CACHE_DIR to a folder of your own")
+
+
+def _digest(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _verified(path: Path) -> bool:
+    """The module file matches the SHA-256 recorded when it was written."""
+    try:
+        recorded = path.with_suffix(".sha256").read_text().strip()
+        return recorded == _digest(path.read_bytes())
+    except OSError:
+        return False
+
+
+def _write_module(path: Path, text: str) -> None:
+    """Write the module and then its hash, each atomically (a killed write leaves no half file)."""
+    from .design import atomic_write_bytes
+
+    data = text.encode("utf-8")
+    atomic_write_bytes(path, data)
+    atomic_write_bytes(path.with_suffix(".sha256"), (_digest(data) + "\n").encode())
 
 
 def clear_cache(*, disk: bool = True) -> int:
@@ -65,6 +110,7 @@ def clear_cache(*, disk: bool = True) -> int:
                 removed += 1
             except FileNotFoundError:
                 pass
+            f.with_suffix(".sha256").unlink(missing_ok=True)
     return removed
 
 
@@ -181,12 +227,8 @@ def generate(name: str, exprs: Sequence[sp.Expr], args: Sequence[sp.Symbol], *,
         return _memory[key]
     folder = cache_dir()
     path = folder / f"ck_{name}_{key[:20]}.py"
-    if not path.exists():
-        text = _source(name, exprs, args, output_names, cse, doc or name)
-        fd, tmp = tempfile.mkstemp(prefix=".ck_", suffix=".tmp", dir=folder)
-        with os.fdopen(fd, "w") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
+    if not _verified(path):  # missing, changed since it was written, or without its hash
+        _write_module(path, _source(name, exprs, args, output_names, cse, doc or name))
     spec = importlib.util.spec_from_file_location(f"cablekit_generated_{name}_{key[:20]}", path)
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)  # our own generated file, not user text

@@ -19,10 +19,12 @@ Conventions (see DEVELOPERS.md, "Sign convention"):
 
 from __future__ import annotations
 
+import glob
 import hashlib
 import math
 import os
 import tempfile
+import time
 import tomllib
 from dataclasses import dataclass, field, fields, replace
 from importlib import import_module
@@ -31,7 +33,8 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .units import UnitError, format_quantity, format_vector, parse_quantity, parse_vector
+from . import limits
+from .units import DIMENSIONS, UnitError, format_quantity, format_vector, parse_quantity, parse_vector
 
 __all__ = [
     "FORMAT",
@@ -121,6 +124,11 @@ class _Collector:
             return None
         if positive and not value > 0:
             self.add(full, raw, "must be greater than zero")
+            return None
+        low = limits.MAGNITUDE[dimension][0]
+        if (positive or nonnegative) and 0 < value < low:
+            self.add(full, raw, f"{'0 or ' if nonnegative else ''}at least {low:g}{_si_unit(dimension)} "
+                     "(cablekit.limits.MAGNITUDE; a unit slip?)")
             return None
         if nonnegative and value < 0:
             self.add(full, raw, "must not be negative")
@@ -255,6 +263,10 @@ class Exit:
         used for the fleet angle; 0 when unknown.
     home_length : measured or calibrated cable length at the home pose [m]; ``None`` means
         "computed from ``home.pose`` by inverse kinematics".
+    min_tension : this cable's least taut tension [N]; ``None`` means ``cable.min_tension``.
+    max_tension : a tension limit stated for this cable [N]; ``None`` means ``cable.max_tension``
+        (if any).  The limit in force is the lowest of it, rope and motor
+        (:func:`cablekit.statics.tension_limits`).
     """
 
     name: str
@@ -262,6 +274,8 @@ class Exit:
     pulley_diameter: float = 0.0
     drum_distance: float = 0.0
     home_length: float | None = None
+    min_tension: float | None = None
+    max_tension: float | None = None
 
 
 @dataclass(frozen=True)
@@ -310,7 +324,11 @@ class Cable:
 
     diameter [m]; breaking_force: minimum breaking force [N]; axial_stiffness: EA [N];
     mass_per_length [kg/m]; min_tension: the least tension that counts as taut [N];
-    construction: free text such as ``"7x19 galvanised"``.
+    construction: free text such as ``"7x19 galvanised"``; its strand pattern (7x19, 7x7,
+    6x7, 6x19, 6x36, 8x19, 19x7) picks the D/d limits; max_tension: a tension limit stated
+    for every cable [N] (``None``: only rope and motor limit it).
+    use_class: how the rope is used, ``"general"`` or ``"over_people"`` (a load that may
+    hang over people: a higher rope design factor applies, see ``practice.py``).
     """
 
     diameter: float
@@ -319,6 +337,8 @@ class Cable:
     mass_per_length: float
     min_tension: float
     construction: str = ""
+    max_tension: float | None = None
+    use_class: str = "general"
 
 
 @dataclass(frozen=True)
@@ -333,6 +353,15 @@ class Winch:
     count_rate_limit: highest count rate the controller can decode [Hz];
     motor_rated_torque, motor_peak_torque [N*m]; motor_rated_speed [rad/s];
     brake: the winch has a holding brake; dead_wraps: turns always left on the drum.
+    brake_holding_torque: the brake's rated static holding torque at the motor shaft [N*m]
+        (required when ``brake``; a brake on the drum: its torque divided by the gear ratio).
+    self_locking: the gear train cannot be driven backwards by the load (e.g. a self-locking
+        worm gear); without a brake such a winch is a warning instead of a failure.
+    deadband_definition: what ``deadband_counts`` means. ``"plus_minus"``: the controller
+        ignores errors up to +/- k counts, so it settles anywhere in a band 2k + 1 counts
+        wide; ``"width"``: ``deadband_counts`` is the band's whole width in counts (a 3-count
+        band is +/- 1 count).  The effective motion step is the band's width (at least one
+        count), see :attr:`step_counts`.
     """
 
     drum_diameter: float
@@ -350,10 +379,28 @@ class Winch:
     flange_diameter: float = 0.0
     grooved: bool = False
     brake: bool = False
+    brake_holding_torque: float | None = None
+    self_locking: bool = False
+    deadband_definition: str = "plus_minus"
 
     @property
     def counts_per_motor_rev(self) -> int:
         return int(self.encoder_lines * self.decoding)
+
+    @property
+    def step_counts(self) -> float:
+        """Effective motion step [counts]: the width of the band the controller settles in.
+
+        ``2k + 1`` for a +/- k dead band, the given width for ``"width"``, never below one
+        count (common practice, no source: the controller can stop on any count of the band,
+        so commands closer than the band's width are not resolved)."""
+        k = float(self.deadband_counts)
+        return 2.0 * k + 1.0 if self.deadband_definition == "plus_minus" else max(k, 1.0)
+
+    @property
+    def deadband_half_counts(self) -> float:
+        """Half-width of the dead band [counts]: the +/- error it leaves (``(width - 1) / 2``)."""
+        return 0.5 * (self.step_counts - 1.0)
 
 
 @dataclass(frozen=True)
@@ -492,6 +539,9 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
               "a list of [[frame.exits]] tables, one per cable")
         ok = False
         exits_raw = []
+    elif len(exits_raw) > limits.MAX_CABLES:
+        c.add("frame.exits", f"{len(exits_raw)} cables", f"at most {limits.MAX_CABLES} cables (cablekit.limits)")
+        return None
     seen = set()
     for k, e in enumerate(exits_raw):
         p = f"frame.exits[{k}]"
@@ -499,23 +549,35 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
             c.add(p, e, "expected a table with name and position")
             ok = False
             continue
-        c.unknown(e, {"name", "position", "pulley_diameter", "drum_distance", "home_length"}, p)
+        c.unknown(e, {"name", "position", "pulley_diameter", "drum_distance", "home_length", "min_tension",
+                      "max_tension"}, p)
         name = c.text(e, "name", p, default=f"C{k + 1}")
         if name is not None and name in seen:
             c.add(f"{p}.name", name, "cable names must be unique")
         seen.add(name)
         pos = c.vector(e, "position", "length", p)
         pd = c.quantity(e, "pulley_diameter", "length", p, required=False, nonnegative=True, default=0.0)
+        if pd and pd < limits.MIN_DRUM_DIAMETER:
+            c.add(f"{p}.pulley_diameter", e.get("pulley_diameter"),
+                  f"0 (an eyelet) or at least {limits.MIN_DRUM_DIAMETER * 1e3:g} mm (cablekit.limits)")
+            pd = None
         dd = c.quantity(e, "drum_distance", "length", p, required=False, nonnegative=True, default=0.0)
         hl = c.quantity(e, "home_length", "length", p, required=False, positive=True, default=None)
-        if None in (name, pos, pd, dd) or ("home_length" in e and hl is None):
+        tlo = c.quantity(e, "min_tension", "force", p, required=False, positive=True, default=None)
+        thi = c.quantity(e, "max_tension", "force", p, required=False, positive=True, default=None)
+        if None in (name, pos, pd, dd) or ("home_length" in e and hl is None) or \
+                any(k in e and v is None for k, v in (("min_tension", tlo), ("max_tension", thi))):
             ok = False
             continue
-        exits.append(Exit(name=name, position=pos, pulley_diameter=pd, drum_distance=dd, home_length=hl))
+        exits.append(Exit(name=name, position=pos, pulley_diameter=pd, drum_distance=dd, home_length=hl,
+                          min_tension=tlo, max_tension=thi))
     obstacles: list[Obstacle] = []
     obs_raw = t.get("obstacles", [])
     if not isinstance(obs_raw, list):
         c.add("frame.obstacles", obs_raw, "a list of [[frame.obstacles]] tables")
+        obs_raw = []
+    elif len(obs_raw) > limits.MAX_OBSTACLES:
+        c.add("frame.obstacles", f"{len(obs_raw)} obstacles", f"at most {limits.MAX_OBSTACLES} (cablekit.limits)")
         obs_raw = []
     for k, o in enumerate(obs_raw):
         p = f"frame.obstacles[{k}]"
@@ -541,6 +603,10 @@ def _parse_frame(c: _Collector, doc: Mapping) -> Frame | None:
         else:
             gd = tuple(v / n for v in gd)
     g = c.quantity(t, "g", "acceleration", "frame", required=False, positive=True, default=9.80665)
+    if g is not None and not limits.GRAVITY[0] <= g <= limits.GRAVITY[1]:
+        c.add("frame.g", t.get("g"), f"between {limits.GRAVITY[0]:g} and {limits.GRAVITY[1]:g} m/s^2 "
+              "(Earth: 9.81 m/s^2; cablekit.limits)")
+        g = None
     if not ok or gd is None or g is None:
         return Frame(exits=tuple(exits), obstacles=tuple(obstacles)) if exits else None
     return Frame(exits=tuple(exits), obstacles=tuple(obstacles), gravity_direction=gd, g=g)
@@ -609,13 +675,19 @@ def _parse_platform(c: _Collector, doc: Mapping, m: int | None) -> Platform | No
                     body_half_size=body)
 
 
+USE_CLASSES = ("general", "over_people")  # rope use classes (cable.use_class)
+
+
 def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     t = c.table(doc, "cable", "")
     if t is None:
         return None
     c.unknown(t, {"diameter", "breaking_force", "axial_stiffness", "modulus", "metallic_area",
-                  "mass_per_length", "min_tension", "construction"}, "cable")
+                  "mass_per_length", "min_tension", "construction", "max_tension", "use_class"}, "cable")
     d = c.quantity(t, "diameter", "length", "cable", positive=True)
+    if d is not None and d < limits.MIN_CABLE_DIAMETER:
+        c.add("cable.diameter", t.get("diameter"), f"at least {limits.MIN_CABLE_DIAMETER * 1e3:g} mm (cablekit.limits)")
+        d = None
     mbf = c.quantity(t, "breaking_force", "force", "cable", positive=True)
     if "axial_stiffness" in t:
         for key in ("modulus", "metallic_area"):
@@ -632,27 +704,45 @@ def _parse_cable(c: _Collector, doc: Mapping) -> Cable | None:
     mpl = c.quantity(t, "mass_per_length", "mass_per_length", "cable", positive=True)
     tmin = c.quantity(t, "min_tension", "force", "cable", positive=True)
     construction = c.text(t, "construction", "cable", default="")
+    use_class = c.text(t, "use_class", "cable", default="general", choices=USE_CLASSES)
     if mbf is not None and tmin is not None and tmin >= mbf:
         c.add("cable.min_tension", t.get("min_tension"), "must be below the breaking force")
-    if None in (d, mbf, ea, mpl, tmin, construction):
+    if mbf is not None and ea is not None and mbf > limits.MAX_BREAKING_STRAIN * ea:
+        c.add("cable.axial_stiffness" if "axial_stiffness" in t else "cable.modulus", t.get("axial_stiffness", t.get("modulus")),
+              f"EA of at least {mbf / limits.MAX_BREAKING_STRAIN:.3g} N: the breaking force would stretch the rope by "
+              f"more than {limits.MAX_BREAKING_STRAIN:.0%} (cablekit.limits.MAX_BREAKING_STRAIN)")
+        ea = None
+    if d is not None and mpl is not None and mpl > limits.MAX_ROPE_DENSITY * math.pi * d * d / 4:
+        c.add("cable.mass_per_length", t.get("mass_per_length"),
+              f"at most {limits.MAX_ROPE_DENSITY * math.pi * d * d / 4:.3g} kg/m for a {d * 1e3:g} mm rope (a density "
+              f"of {limits.MAX_ROPE_DENSITY:g} kg/m^3, denser than any rope; cablekit.limits)")
+        mpl = None
+    tmax = c.quantity(t, "max_tension", "force", "cable", required=False, positive=True, default=None)
+    if None in (d, mbf, ea, mpl, tmin, construction, use_class) or ("max_tension" in t and tmax is None):
         return None
     return Cable(diameter=d, breaking_force=mbf, axial_stiffness=ea, mass_per_length=mpl,
-                 min_tension=tmin, construction=construction)
+                 min_tension=tmin, construction=construction, max_tension=tmax, use_class=use_class)
 
 
 _WINCH_KEYS = {"drum_diameter", "drum_width", "flange_diameter", "grooved", "gear_ratio", "efficiency",
                "encoder_lines", "decoding", "deadband_counts", "count_rate_limit", "motor_rated_torque",
-               "motor_peak_torque", "motor_rated_speed", "brake", "dead_wraps"}
+               "motor_peak_torque", "motor_rated_speed", "brake", "dead_wraps",
+               "brake_holding_torque", "self_locking", "deadband_definition"}
+DEADBAND_DEFINITIONS = ("plus_minus", "width")  # meanings of winch deadband_counts
 
 
 def _parse_one_winch(c: _Collector, t: Mapping, p: str) -> Winch | None:
     c.unknown(t, _WINCH_KEYS, p)
     dd = c.quantity(t, "drum_diameter", "length", p, positive=True)
+    if dd is not None and dd < limits.MIN_DRUM_DIAMETER:
+        c.add(f"{p}.drum_diameter", t.get("drum_diameter"),
+              f"at least {limits.MIN_DRUM_DIAMETER * 1e3:g} mm (cablekit.limits)")
+        dd = None
     dw = c.quantity(t, "drum_width", "length", p, positive=True)
     fd = c.quantity(t, "flange_diameter", "length", p, required=False, nonnegative=True, default=0.0)
-    gr = c.number(t, "gear_ratio", p, minimum=0.0, exclusive_min=True)
+    gr = c.number(t, "gear_ratio", p, minimum=0.0, exclusive_min=True, maximum=limits.MAX_GEAR_RATIO)
     eff = c.number(t, "efficiency", p, minimum=0.0, exclusive_min=True, maximum=1.0)
-    lines = c.number(t, "encoder_lines", p, integer=True, minimum=1)
+    lines = c.number(t, "encoder_lines", p, integer=True, minimum=1, maximum=limits.MAX_ENCODER_LINES)
     dec = c.number(t, "decoding", p, integer=True)
     if dec is not None and dec not in (1, 2, 4):
         c.add(f"{p}.decoding", t.get("decoding"), "1, 2 or 4 (x1, x2, x4 quadrature decoding)")
@@ -665,17 +755,27 @@ def _parse_one_winch(c: _Collector, t: Mapping, p: str) -> Winch | None:
     gro = c.boolean(t, "grooved", p, default=False)
     brk = c.boolean(t, "brake", p, default=False)
     dwr = c.number(t, "dead_wraps", p, minimum=0.0)  # no default: a design choice, asked for explicitly
+    bht = c.quantity(t, "brake_holding_torque", "torque", p, required=False, positive=True)
+    slk = c.boolean(t, "self_locking", p, default=False)
+    dbd = c.text(t, "deadband_definition", p, default="plus_minus", choices=DEADBAND_DEFINITIONS)
+    if brk and "brake_holding_torque" not in t:
+        c.add(f"{p}.brake_holding_torque", "missing", "the brake's rated holding torque at the motor shaft such as "
+                                                      "'0.5 N*m' is required when brake = true")
+    if brk is False and "brake_holding_torque" in t:
+        c.add(f"{p}.brake_holding_torque", t["brake_holding_torque"], "only with brake = true (set brake = true or "
+                                                                      "remove the holding torque)")
     if tr is not None and tp is not None and tp < tr:
         c.add(f"{p}.motor_peak_torque", t.get("motor_peak_torque"), "must not be below the rated torque")
     if dd is not None and fd not in (None, 0.0) and fd <= dd:
         c.add(f"{p}.flange_diameter", t.get("flange_diameter"), "must exceed the drum diameter")
-    vals = (dd, dw, fd, gr, eff, lines, dec, db, crl, tr, tp, sp, gro, brk, dwr)
-    if any(v is None for v in vals):
+    vals = (dd, dw, fd, gr, eff, lines, dec, db, crl, tr, tp, sp, gro, brk, dwr, slk, dbd)
+    if any(v is None for v in vals) or (brk and bht is None):
         return None
     return Winch(drum_diameter=dd, drum_width=dw, flange_diameter=fd, gear_ratio=float(gr), efficiency=float(eff),
                  encoder_lines=int(lines), decoding=int(dec), deadband_counts=float(db), count_rate_limit=crl,
                  motor_rated_torque=tr, motor_peak_torque=tp, motor_rated_speed=sp, grooved=gro, brake=brk,
-                 dead_wraps=float(dwr))
+                 dead_wraps=float(dwr), brake_holding_torque=bht if brk else None, self_locking=slk,
+                 deadband_definition=dbd)
 
 
 def _parse_winches(c: _Collector, doc: Mapping, m: int | None) -> tuple[Winch, ...] | None:
@@ -743,6 +843,10 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
         c.add("task.points", pts_raw, "a list of points such as ['0.5, 0.5, 0.3 m']")
         ok = False
         pts_raw = []
+    elif len(pts_raw) > limits.MAX_TASK_POINTS:
+        c.add("task.points", f"{len(pts_raw):,} points", f"at most {limits.MAX_TASK_POINTS:,} (cablekit.limits); "
+              "check longer lists from a CSV with 'cablekit points'")
+        return None
     for k, pt in enumerate(pts_raw):
         try:
             pts.append(parse_vector(pt, "length", field=f"task.points[{k}]"))
@@ -758,6 +862,9 @@ def _parse_task(c: _Collector, doc: Mapping, kind: str | None) -> Task | None:
         c.add("task.orientations", ori_raw, "a non-empty list of roll, pitch, yaw such as ['0, 0, 15 deg']")
         ok = False
         ori_raw = []
+    elif len(ori_raw) > limits.MAX_ORIENTATIONS:
+        c.add("task.orientations", f"{len(ori_raw):,} orientations", f"at most {limits.MAX_ORIENTATIONS:,} (cablekit.limits)")
+        return None
     for k, o in enumerate(ori_raw):
         try:
             oris.append(parse_vector(o, "angle", field=f"task.orientations[{k}]"))
@@ -826,8 +933,20 @@ def _parse_practice(c: _Collector, doc: Mapping) -> dict[str, float]:
         else:
             val = c.quantity(t, key, entry.dimension, "practice", positive=True)
         if val is not None:
+            low, high = entry.value / limits.PRACTICE_OVERRIDE_FACTOR, entry.value * limits.PRACTICE_OVERRIDE_FACTOR
+            if key == "rope_design_factor":
+                low = max(low, limits.MIN_DESIGN_FACTOR)
+            if not low <= val <= high:
+                c.add(f"practice.{key}", raw, f"between {low:g} and {high:g}{_si_unit(entry.dimension)} (the common-practice "
+                      f"value {entry.value:g} within a factor {limits.PRACTICE_OVERRIDE_FACTOR:g}; cablekit.limits)")
+                continue
             out[key] = float(val)
     return out
+
+
+def _si_unit(dimension: str) -> str:
+    unit = DIMENSIONS[dimension][0]
+    return f" {unit}" if unit else ""
 
 
 # --------------------------------------------------------------------------------------
@@ -842,8 +961,15 @@ def _check_geometry(c: _Collector, d: Design) -> None:
     task = d.task
     # the task region should sit inside the frame's bounding box (exit points)
     lo, hi = exits.min(axis=0), exits.max(axis=0)
+    span = float(np.linalg.norm(hi - lo))
+    if not limits.FRAME_SPAN[0] <= span <= limits.FRAME_SPAN[1]:
+        c.add("frame.exits", f"exit points spanning {span:g} m",
+              f"a frame between {limits.FRAME_SPAN[0]:g} m and {limits.FRAME_SPAN[1]:g} m across (cablekit.limits)")
+        return
+    if not _grid_fits(c, d):
+        return
     tol = 1e-9
-    region = []
+    region = [("home.position", np.array(d.home_pose[:3], float))]
     if task.box_lower is not None:
         region += [("task.box_lower", np.array(task.box_lower)), ("task.box_upper", np.array(task.box_upper))]
     region += [(f"task.points[{k}]", np.array(p)) for k, p in enumerate(task.points)]
@@ -886,6 +1012,102 @@ def _check_geometry(c: _Collector, d: Design) -> None:
             return
 
 
+def _check_tension_limits(c: _Collector, d: Design) -> None:
+    """Each cable's least taut tension below its stated limit and the breaking force."""
+    found: dict[str, tuple[str, str]] = {}  # one problem per field, even when shared by every cable
+    for k, e in enumerate(d.frame.exits):
+        lo = d.cable.min_tension if e.min_tension is None else e.min_tension
+        hi = d.cable.max_tension if e.max_tension is None else e.max_tension
+        where = f"frame.exits[{k}].min_tension" if e.min_tension is not None else "cable.min_tension"
+        if lo >= d.cable.breaking_force:
+            found.setdefault(where, (f"{lo:g} N", f"below the breaking force {d.cable.breaking_force:g} N"))
+        elif hi is not None and lo >= hi:
+            found.setdefault(where, (f"{lo:g} N", f"below the stated max_tension {hi:g} N of cable {e.name}"))
+    for where, (value, expected) in found.items():
+        c.add(where, value, expected)
+
+
+def _check_rope_weight(c: _Collector, d: Design) -> None:
+    """The rope carries its own weight over the longest cable run (breaking length, MBF / (w g))."""
+    points = [np.array(d.home_pose[:3], float), *(np.array(p, float) for p in d.task.points)]
+    if d.task.box_lower is not None:
+        lo, hi = np.array(d.task.box_lower), np.array(d.task.box_upper)
+        points += [np.where([i & 1, i & 2, i & 4], hi, lo) for i in range(8)]
+    longest = max(float(np.max(np.linalg.norm(d.exits - p, axis=1))) for p in points)
+    breaking_length = d.cable.breaking_force / (d.cable.mass_per_length * d.frame.g)
+    if breaking_length < longest:
+        c.add("cable.breaking_force", format_quantity(d.cable.breaking_force, "force"),
+              f"more than the weight of the longest cable run ({longest:g} m of rope weigh "
+              f"{d.cable.mass_per_length * d.frame.g * longest:.3g} N): the rope would break under its own weight")
+
+
+def _check_holding(c: _Collector, d: Design, shared: bool) -> None:
+    """Some tension is allowed on every cable (t_max > t_min) and the platform hangs at the home
+    pose with every cable pulling: the home lengths, stretch and sag are all referred to it."""
+    from .statics import tension_limits, tensions_at
+
+    lim = tension_limits(d)
+    if np.any(lim.t_max <= lim.t_min):
+        return  # no pose can be held: the workspace and drive checks fail it (a design verdict, not bad input)
+    tensions = tensions_at(d, np.asarray(d.home_pose, float)[None, :]).tensions[0]
+    if not np.all(np.isfinite(tensions) & (tensions > 0)):
+        slack = [d.cable_names[i] for i in np.flatnonzero(~(np.isfinite(tensions) & (tensions > 0)))]
+        c.add("home.position", format_vector(d.home_pose[:3], "length"),
+              f"a pose where the platform hangs with every cable pulling (here {', '.join(slack)} would go slack): "
+              "home lengths, stretch and sag are referred to it")
+    elif np.max(tensions) >= d.cable.breaking_force:
+        i = int(np.argmax(tensions))
+        c.add("home.position", format_vector(d.home_pose[:3], "length"),
+              f"a pose where the platform hangs without breaking a cable (cable {d.cable_names[i]} would carry "
+              f"{tensions[i]:.3g} N, over the breaking force {d.cable.breaking_force:.3g} N)")
+
+
+def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
+    """Each drum holds at least one wrap of the rope (the drivetrain sizing needs it), and a count
+    and the deadband stay within the accuracy model's small errors (limits.MAX_LENGTH_PER_COUNT,
+    MAX_DEADBAND_LENGTH)."""
+    from .kinematics import length_per_count
+    from .practice import practice_value
+
+    lpc = length_per_count(d)
+    for k, w in enumerate(d.winches[:1] if shared else d.winches):
+        p = "winch" if shared else f"winches[{k}]"
+        pitch = d.cable.diameter * (practice_value("groove_pitch", d.practice) if w.grooved else 1.0)
+        if w.drum_width < pitch:
+            c.add(f"{p}.drum_width", format_quantity(w.drum_width, "length"),
+                  f"room for at least one wrap of the {d.cable.diameter * 1e3:g} mm rope ({pitch * 1e3:g} mm)")
+        if lpc[k] > limits.MAX_LENGTH_PER_COUNT:
+            c.add(f"{p}.encoder_lines", f"{lpc[k]:.3g} m of cable per count",
+                  f"at most {limits.MAX_LENGTH_PER_COUNT * 1e3:g} mm of cable per encoder count (drum, gear_ratio, "
+                  "encoder_lines and decoding together; cablekit.limits)")
+        elif w.deadband_counts * lpc[k] > limits.MAX_DEADBAND_LENGTH:
+            c.add(f"{p}.deadband_counts", f"{w.deadband_counts:g} counts = {w.deadband_counts * lpc[k]:.3g} m",
+                  f"a deadband of at most {limits.MAX_DEADBAND_LENGTH * 1e3:g} mm of cable (cablekit.limits)")
+
+
+def _grid_fits(c: _Collector, d: Design) -> bool:
+    """The task region sampled at ``task.step`` stays within :data:`limits.MAX_GRID_POSES`."""
+    t = d.task
+    positions = float(len(t.points))
+    if t.box_lower is not None:
+        counts = np.floor((np.array(t.box_upper) - np.array(t.box_lower)) / t.step + 1e-9) + 1
+        positions += float(np.prod(counts))
+    k = len(t.orientations) if d.dof == 6 else 1
+    fixed = (len(t.points) + (t.box_lower is not None)) * k
+    if fixed > limits.MAX_FIXED_POSES:
+        c.add("task.points", f"{len(t.points):,} points{f' x {k} orientations' if k > 1 else ''}",
+              f"at most {limits.MAX_FIXED_POSES:,} poses sampled whatever the step (task points plus one box "
+              "position, times the orientations; cablekit.limits.MAX_FIXED_POSES)")
+        return False
+    poses = positions * k
+    if poses > limits.MAX_GRID_POSES:
+        c.add("task.step", format_quantity(t.step, "length"),
+              f"a step giving at most {limits.MAX_GRID_POSES:,} poses over the task region (this one gives "
+              f"{poses:,.0f}; cablekit.limits.MAX_GRID_POSES): use a coarser step")
+        return False
+    return True
+
+
 def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     """Validate a parsed TOML document and build a :class:`Design` (SI floats).
 
@@ -919,6 +1141,11 @@ def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     design = Design(meta=meta, frame=frame, platform=platform, cable=cable, winches=winches, payload=payload,
                     task=task, home_pose=tuple(home), practice=practice)
     _check_geometry(c, design)
+    _check_tension_limits(c, design)
+    _check_drums(c, design, "winch" in doc)
+    _check_rope_weight(c, design)
+    if not c.problems:
+        _check_holding(c, design, "winch" in doc)
     if c.problems:
         raise DesignError(c.problems, source)
     # optional sections owned by other modules
@@ -944,26 +1171,51 @@ def revalidate(design: Design) -> Design:
 
 def loads_design(text: str, *, source: str | None = None) -> Design:
     """Parse design-file text. Raises :class:`DesignError` on any problem."""
+    from .limits import MAX_DESIGN_BYTES
+
+    if len(text) > MAX_DESIGN_BYTES:
+        raise DesignError([Problem("<file>", f"{len(text):,} characters",
+                                   f"a design file of at most {MAX_DESIGN_BYTES:,} characters (cablekit.limits)")], source)
+    text = text.removeprefix("\ufeff")  # a UTF-8 byte-order mark some editors write
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise DesignError([Problem("<file>", "TOML syntax", f"valid TOML ({exc})")], source) from None
-    return design_from_dict(doc, source=source)
+    except RecursionError:  # tables or arrays nested thousands deep
+        raise DesignError([Problem("<file>", "nesting too deep", "valid TOML of ordinary depth")], source) from None
+    try:
+        return design_from_dict(doc, source=source)
+    except RecursionError:
+        raise DesignError([Problem("<file>", "nesting too deep", "tables and lists nested a few levels deep")],
+                          source) from None
 
 
 def load_design(path) -> Design:
     """Read and validate a design file. Raises :class:`DesignError` on any problem."""
+    from .limits import MAX_DESIGN_BYTES
+
     path = Path(path)
     try:
+        if path.is_file() and path.stat().st_size > MAX_DESIGN_BYTES:
+            raise DesignError([Problem(str(path), f"{path.stat().st_size:,} bytes",
+                                       f"a design file of at most {MAX_DESIGN_BYTES:,} bytes (cablekit.limits)")],
+                              str(path))
+        if not path.is_file() and path.exists():
+            raise DesignError([Problem(str(path), "not a regular file", "a design file (not a folder or device)")],
+                              str(path))
         raw = path.read_bytes()
     except FileNotFoundError:
         raise DesignError([Problem(str(path), "missing", "an existing design file")], str(path)) from None
     except OSError as exc:
         raise DesignError([Problem(str(path), type(exc).__name__, f"a readable file ({exc.strerror})")], str(path)) from None
+    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise DesignError([Problem(str(path), "UTF-16 text", "a UTF-8 TOML text file: save it again as UTF-8 "
+                                   "(in most editors: 'Save with encoding' -> UTF-8)")], str(path))
     try:
         text = raw.decode("utf-8")
-    except UnicodeDecodeError:
-        raise DesignError([Problem(str(path), "not UTF-8", "a UTF-8 TOML text file")], str(path)) from None
+    except UnicodeDecodeError as exc:
+        raise DesignError([Problem(str(path), f"not UTF-8 (byte {exc.start})", "a UTF-8 TOML text file")],
+                          str(path)) from None
     return loads_design(text, source=str(path))
 
 
@@ -995,6 +1247,9 @@ def design_to_dict(d: Design) -> dict:
             t["drum_distance"] = _q(e.drum_distance, "length")
         if e.home_length is not None:
             t["home_length"] = _q(e.home_length, "length")
+        for key in ("min_tension", "max_tension"):
+            if getattr(e, key) is not None:
+                t[key] = _q(getattr(e, key), "force")
         exits.append(t)
     frame: dict[str, Any] = {"gravity_direction": _v(d.frame.gravity_direction, "dimensionless"),
                              "g": _q(d.frame.g, "acceleration"), "exits": exits}
@@ -1016,6 +1271,10 @@ def design_to_dict(d: Design) -> dict:
              "min_tension": _q(cb.min_tension, "force")}
     if cb.construction:
         cable["construction"] = cb.construction
+    if cb.max_tension is not None:
+        cable["max_tension"] = _q(cb.max_tension, "force")
+    if cb.use_class != "general":
+        cable["use_class"] = cb.use_class
     doc["cable"] = cable
 
     def winch(w: Winch) -> dict:
@@ -1029,6 +1288,11 @@ def design_to_dict(d: Design) -> dict:
              "grooved": w.grooved, "brake": w.brake, "dead_wraps": w.dead_wraps}
         if w.flange_diameter:
             t["flange_diameter"] = _q(w.flange_diameter, "length")
+        if w.brake_holding_torque is not None:
+            t["brake_holding_torque"] = _q(w.brake_holding_torque, "torque")
+        if w.self_locking:
+            t["self_locking"] = True
+        t["deadband_definition"] = w.deadband_definition
         return t
 
     if all(w == d.winches[0] for w in d.winches):
@@ -1082,7 +1346,10 @@ def atomic_write_bytes(path, data: bytes) -> Path:
     """
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    remove_stale_temporaries(folder, f".{path.name}.")
+    # the writer's process id is part of the name, so a later save can tell a temporary file
+    # left by a killed writer from one that is still being written
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp", dir=folder)
     try:
         # mkstemp creates the file private (0600); give it the mode a normal open() would
         # (or keep the mode of the file being replaced)
@@ -1105,6 +1372,48 @@ def atomic_write_bytes(path, data: bytes) -> Path:
             pass
         raise
     return path
+
+
+def remove_stale_temporaries(folder, prefix: str) -> int:
+    """Delete ``prefix<pid>.<random>.tmp`` files in ``folder`` whose writing process is gone.
+
+    A save killed between creating its temporary file and the rename leaves it behind; the next
+    save into the same folder removes it.  Files of a process still running are kept.  Returns
+    the number of files removed.
+    """
+    removed = 0
+    try:
+        candidates = list(Path(folder).glob(f"{glob.escape(prefix)}*.tmp"))
+    except OSError:
+        return 0
+    for f in candidates:
+        pid_text = f.name[len(prefix):].split(".", 1)[0]
+        if pid_text.isdigit() and _process_alive(int(pid_text)):
+            continue
+        if not pid_text.isdigit():  # an older name without a process id: only when clearly abandoned
+            try:
+                if f.stat().st_mtime > time.time() - 3600:
+                    continue
+            except OSError:
+                continue
+        try:
+            f.unlink()
+            removed += 1
+        except OSError:
+            pass
+    return removed
+
+
+def _process_alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OverflowError):
+        return pid < 2**22  # another user's process (or an impossible id: not alive)
+    return True
 
 
 def atomic_write_text(path, text: str) -> Path:

@@ -8,7 +8,7 @@ import numpy as np
 
 __all__ = ["TaskGrid", "task_poses", "MAX_POSES"]
 
-MAX_POSES = 20_000_000  # refuse grids that would not fit comfortably in memory
+from .limits import MAX_GRID_POSES as MAX_POSES  # refuse samplings that would not fit in memory and time
 
 
 @dataclass(frozen=True)
@@ -67,8 +67,8 @@ def task_poses(design, *, step: float | None = None, orientations=None, include_
         lo, hi = np.array(task.box_lower), np.array(task.box_upper)
         counts = np.floor((hi - lo) / step + 1e-9) + 1
         if np.prod(counts) > MAX_POSES:
-            raise ValueError(f"a {step * 1e3:g} mm step gives {int(np.prod(counts)):,} positions; "
-                             f"use a coarser step (at most {MAX_POSES:,})")
+            raise ValueError(f"a {step * 1e3:g} mm step gives {np.prod(counts):,.0f} positions; "
+                             f"use a coarser step (at most {MAX_POSES:,}, cablekit.limits.MAX_GRID_POSES)")
         axes = tuple(_axis(lo[k], hi[k], step) for k in range(3))
         shape = tuple(len(a) for a in axes)
         X, Y, Z = np.meshgrid(*axes, indexing="ij")
@@ -91,7 +91,8 @@ def task_poses(design, *, step: float | None = None, orientations=None, include_
         raise ValueError("orientations must be finite angles")
     P, K = len(positions), len(oris)
     if P * K > MAX_POSES:
-        raise ValueError(f"{P:,} positions x {K} orientations is too many poses; use a coarser step")
+        raise ValueError(f"{P:,} positions x {K} orientations is too many poses (at most {MAX_POSES:,}, "
+                         "cablekit.limits.MAX_GRID_POSES); use a coarser step")
     poses = np.empty((P * K, 6))
     poses[:, :3] = np.repeat(positions, K, axis=0)
     poses[:, 3:] = np.tile(oris, (P, 1))

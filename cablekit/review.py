@@ -541,7 +541,11 @@ def _rig_part(design, results: Mapping[str, Any], progress: Progress) -> Part:
                      lim.rope_limit[i], "N", n, "cablekit.statics.tension_limits"),
             Quantity(f"motor_limit:{n}", "motor limit (rated torque through gears and drum)", lim.motor_limit[i],
                      lim.motor_limit[i], "N", n, "cablekit.statics.tension_limits"),
-            Quantity(f"t_max:{n}", f"highest allowed tension (limited by the {lim.limited_by[i]})", lim.t_max[i],
+            *([Quantity(f"stated_limit:{n}", "stated tension limit (max_tension in the design)", lim.stated_limit[i],
+                        lim.stated_limit[i], "N", n, "cablekit.statics.tension_limits")]
+              if np.isfinite(lim.stated_limit[i]) else []),
+            Quantity(f"t_max:{n}", "highest allowed tension (limited by the "
+                     f"{'stated max_tension' if lim.limited_by[i] == 'stated' else lim.limited_by[i]})", lim.t_max[i],
                      lim.t_max[i], "N", n, "cablekit.statics.tension_limits"),
         ]
     q += _tension_range(design, grid, results, progress)
@@ -734,10 +738,10 @@ def _drive_part(key, title, mod, design, results, progress) -> Part:
             q.append(Quantity("sag", "largest cable sag (elastic catenary)", big, big, "mm", source=src))
             n_flag = int(np.sum(sg.pose_flagged))
             q.append(Quantity("sag_flagged", "poses where sag changes a cable's length or direction beyond the "
-                              "practice thresholds", n_flag, n_flag, "poses", source=src))
+                              "sag thresholds", n_flag, n_flag, "poses", source=src))
             if n_flag:
                 not_checked.append(f"Sag: at {n_flag} of {len(sg.poses)} poses the sag changes a cable's length or "
-                                   "direction beyond the practice thresholds; the straight-cable results (lengths, "
+                                   "direction beyond the sag thresholds; the straight-cable results (lengths, "
                                    "counts, tensions) are approximate there.")
     else:
         not_checked.append("Cable sag: not checked (cablekit.cables has no sag model installed).")
@@ -1128,7 +1132,14 @@ def _render_inputs(design) -> str:
                     ("minimum breaking force", _si(c.breaking_force, "kN")),
                     ("axial stiffness EA", _si(c.axial_stiffness, "kN")),
                     ("mass per length", _si(c.mass_per_length, "kg/m")),
-                    ("least taut tension", _si(c.min_tension, "N"))]))
+                    ("least taut tension", _si(c.min_tension, "N")),
+                    ("use class", "load may hang over people" if c.use_class == "over_people" else "general")]
+                   + ([("stated tension limit (max_tension)", _si(c.max_tension, "N"))] if c.max_tension else [])))
+    own = [[_h(e.name), _si(e.min_tension, "N") if e.min_tension is not None else "shared",
+            _si(e.max_tension, "N") if e.max_tension is not None else "shared"]
+           for e in d.frame.exits if e.min_tension is not None or e.max_tension is not None]
+    if own:
+        out.append(_table(["cable", "own least taut tension", "own stated tension limit"], own))
     out.append("<h3>Winches</h3>")
     shared = all(w == d.winches[0] for w in d.winches)
     winches = [d.winches[0]] if shared else list(d.winches)
@@ -1141,12 +1152,15 @@ def _render_inputs(design) -> str:
               ("gear efficiency", lambda w: _num(w.efficiency)),
               ("encoder lines per motor turn", lambda w: str(w.encoder_lines)),
               ("decoding (counts per line)", lambda w: f"x{w.decoding}"),
-              ("controller deadband", lambda w: f"{_num(w.deadband_counts)} counts"),
+              ("controller deadband", lambda w: (f"+/- {_num(w.deadband_counts)} counts" if w.deadband_definition
+                                                  == "plus_minus" else f"{_num(w.deadband_counts)} counts wide")
+               + f" (motion step {_num(w.step_counts)} counts)"),
               ("count-rate limit", lambda w: _si(w.count_rate_limit, "kHz")),
               ("motor rated torque", lambda w: _si(w.motor_rated_torque, "N*m")),
               ("motor peak torque", lambda w: _si(w.motor_peak_torque, "N*m")),
               ("motor rated speed", lambda w: _si(w.motor_rated_speed, "rpm")),
-              ("holding brake", lambda w: "yes" if w.brake else "<b>no</b>"),
+              ("holding brake", lambda w: f"yes, holds {_si(w.brake_holding_torque, 'N*m')} at the motor shaft"
+               if w.brake else "<b>no</b>" + (" (drive declared self-locking)" if w.self_locking else "")),
               ("dead wraps", lambda w: _num(w.dead_wraps))]
     out.append(_table(heads, [[_h(lab)] + [f(w) for w in winches] for lab, f in labels]))
     t = d.task

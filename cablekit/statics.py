@@ -13,11 +13,11 @@ wrench-feasible set).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 
 import numpy as np
 
-from .kinematics import as_poses, structure_matrix
+from .kinematics import as_poses, structure_matrix, zero_length_cables
 from .practice import practice_value
 
 __all__ = [
@@ -31,6 +31,8 @@ __all__ = [
     "motor_cable_force",
     "tensions_at",
     "solve_tensions",
+    "SINGULAR_NOTE",
+    "without_singular",
 ]
 
 
@@ -38,9 +40,11 @@ __all__ = [
 class TensionLimits:
     """Per-cable tension limits [N], shape (m,) each.
 
-    t_min : least tension that counts as taut; rope_limit : breaking force / design factor;
-    motor_limit : what the winch motor's rated torque pulls through gears and drum;
-    t_max : the lower of the two; limited_by : "rope" or "motor" per cable.
+    t_min : least tension that counts as taut (the cable's own ``min_tension`` where stated,
+    else ``cable.min_tension``); rope_limit : breaking force / design factor; motor_limit : what
+    the winch motor's rated torque pulls through gears and drum; stated_limit : the design's
+    ``max_tension`` for the cable (inf where none is stated); t_max : the lowest of the three;
+    limited_by : "stated", "rope" or "motor" per cable (the first of these on a tie).
     """
 
     t_min: np.ndarray
@@ -49,6 +53,7 @@ class TensionLimits:
     t_max: np.ndarray
     limited_by: tuple[str, ...]
     design_factor: float
+    stated_limit: np.ndarray
 
 
 def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficiency):
@@ -62,16 +67,24 @@ def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficien
 
 
 def tension_limits(design) -> TensionLimits:
-    """Tension limits of every cable: ``t_max = min(MBF / design factor, motor limit)``."""
+    """Tension limits of every cable: ``t_max = min(stated max_tension, MBF / design factor, motor limit)``.
+
+    The stated limit is the cable's own ``[[frame.exits]] max_tension``, else ``[cable]
+    max_tension``, else none; ``t_min`` likewise the cable's own ``min_tension`` or the shared one.
+    """
     m = design.m
     df = practice_value("rope_design_factor", design.practice)
     rope = np.full(m, design.cable.breaking_force / df)
     motor = np.array([motor_cable_force(w.motor_rated_torque, w.drum_diameter, design.cable.diameter,
                                         w.gear_ratio, w.efficiency) for w in design.winches], dtype=float)
-    t_max = np.minimum(rope, motor)
-    by = tuple("rope" if r <= mo else "motor" for r, mo in zip(rope, motor))
-    return TensionLimits(t_min=np.full(m, design.cable.min_tension), rope_limit=rope, motor_limit=motor,
-                         t_max=t_max, limited_by=by, design_factor=df)
+    exits = design.frame.exits
+    shared = np.inf if design.cable.max_tension is None else design.cable.max_tension
+    stated = np.array([shared if e.max_tension is None else e.max_tension for e in exits], dtype=float)
+    t_min = np.array([design.cable.min_tension if e.min_tension is None else e.min_tension for e in exits], float)
+    t_max = np.minimum(stated, np.minimum(rope, motor))
+    by = tuple("stated" if st <= min(r, mo) else "rope" if r <= mo else "motor" for st, r, mo in zip(stated, rope, motor))
+    return TensionLimits(t_min=t_min, rope_limit=rope, motor_limit=motor, t_max=t_max, limited_by=by,
+                         design_factor=df, stated_limit=stated)
 
 
 def rotation_matrices(angles) -> np.ndarray:
@@ -235,14 +248,52 @@ def solve_lp(W, w_ext, t_min, t_max) -> TensionResult:
                          method="max-margin (linear program, HiGHS)")
 
 
-def solve_tensions(W, w_ext, t_min, t_max, *, method: str = "auto") -> TensionResult:
+# what a singular pose (undefined structure matrix) gets in every per-pose field of a result
+_SINGULAR_FILL = {"tensions": np.nan, "feasible": False, "margin": -np.inf, "limiting_cable": -1,
+                  "nominal_margin": -np.inf, "active_lower": False, "active_upper": False, "by_lp": False}
+SINGULAR_NOTE = "no solution / singular (a cable of zero length: attachment at its exit)"
+
+
+def without_singular(solve, W, w_ext, singular):
+    """Run ``solve(W, w_ext)`` on the poses not marked ``singular`` and fill in the others.
+
+    ``singular`` (N,) bool marks poses whose structure matrix is undefined (a cable of zero
+    length, see :func:`cablekit.kinematics.zero_length_cables`); their ``W`` may hold NaN.  They
+    come back infeasible with no tensions (NaN), margin ``-inf`` and limiting cable -1, and the
+    result's ``method`` counts them.  ``solve`` returns a :class:`TensionResult` (or subclass).
+    """
+    W = np.asarray(W, float)
+    N = W.shape[0]
+    w = np.broadcast_to(np.asarray(w_ext, float), (N, W.shape[1]))
+    sing = np.broadcast_to(np.asarray(singular, bool), (N,))
+    if not np.any(sing):
+        return solve(W, w)
+    keep = np.flatnonzero(~sing)
+    res = solve(W[keep], w[keep])
+    out = {}
+    for f in fields(res):
+        v = getattr(res, f.name)
+        if f.name in _SINGULAR_FILL:
+            full = np.full((N,) + v.shape[1:], _SINGULAR_FILL[f.name], dtype=v.dtype)
+            full[keep] = v
+            out[f.name] = full
+    out["method"] = f"{res.method}; {int(sing.sum())} pose(s) {SINGULAR_NOTE}"
+    return replace(res, **out)
+
+
+def solve_tensions(W, w_ext, t_min, t_max, *, method: str = "auto", singular=None) -> TensionResult:
     """Tension distribution for stacked structure matrices (N, n, m) and wrenches (N, n).
 
     ``method="auto"``: the unique solution when m = n, else the fast exact batched path of
     :func:`cablekit.tension.distribute`; ``"lp"``: the per-pose linear program.
+    ``singular``: optional (N,) bool of poses with an undefined structure matrix (see
+    :func:`without_singular`); they are classified "no solution / singular", not solved.
     """
     if method not in ("auto", "lp"):
         raise ValueError(f"method must be 'auto' or 'lp', got {method!r}")
+    if singular is not None:
+        return without_singular(lambda Ws, ws: solve_tensions(Ws, ws, t_min, t_max, method=method), W, w_ext,
+                                singular)
     W = np.asarray(W, float)
     if method == "lp":
         return solve_lp(W, w_ext, t_min, t_max)
@@ -257,8 +308,11 @@ def tensions_at(design, poses, *, extra=None, method: str = "auto") -> TensionRe
     """Tensions for the design at ``poses`` under gravity (+ ``extra`` wrench).
 
     ``method="auto"`` uses the fast exact batched path, ``"lp"`` the per-pose linear program.
+    A pose with a cable of zero length (an attachment exactly at its exit) has no structure
+    matrix: it comes back infeasible, "no solution / singular" (see :func:`without_singular`).
     """
     q = as_poses(design, poses)
     lim = tension_limits(design)
+    sing = np.any(zero_length_cables(design, q), axis=1)
     return solve_tensions(structure_matrix(design, q), external_wrench(design, q, extra=extra), lim.t_min,
-                          lim.t_max, method=method)
+                          lim.t_max, method=method, singular=sing if np.any(sing) else None)

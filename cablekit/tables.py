@@ -19,10 +19,13 @@ from typing import Mapping
 import numpy as np
 
 from .design import atomic_write_text
-from .units import UnitError, parse_quantity, unit_factor
+from .limits import MAGNITUDE, MAX_TABLE_BYTES, MAX_TABLE_CELL, MAX_TABLE_ROWS
+from .units import DIMENSIONS, UnitError, parse_quantity, unit_factor
 
 __all__ = ["TableError", "Column", "Table", "read_table", "write_table"]
 
+_CELL_NUMBER = re.compile(r"[-+]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][-+]?[0-9]+)?|[-+]?(?:inf|infinity|nan)",
+                          re.ASCII | re.IGNORECASE)
 _HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_ ]*?)\s*(?:\[\s*([^\]]*)\s*\])?\s*$")
 
 
@@ -76,18 +79,45 @@ def read_table(path_or_text, columns: list[Column], *, source: str | None = None
         p = Path(path_or_text)
         src = source or str(p)
         try:
-            text = p.read_text(encoding="utf-8-sig")
+            if p.exists() and not p.is_file():
+                raise TableError(f"{src}: not a regular file (a folder, pipe or device); give a CSV file")
+            if p.stat().st_size > MAX_TABLE_BYTES:
+                raise TableError(f"{src}: {p.stat().st_size:,} bytes; at most {MAX_TABLE_BYTES:,} "
+                                 "(cablekit.limits.MAX_TABLE_BYTES)")
+            raw = p.read_bytes()
         except FileNotFoundError:
             raise TableError(f"{src}: file not found") from None
-        except (OSError, UnicodeDecodeError) as exc:
+        except OSError as exc:
+            raise TableError(f"{src}: cannot read ({exc.strerror or exc})") from None
+        if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+            raise TableError(f"{src}: the file is UTF-16 text; save it again as UTF-8")
+        try:
+            text = raw.decode("utf-8-sig")
+        except UnicodeDecodeError as exc:
             raise TableError(f"{src}: cannot read as UTF-8 text ({exc})") from None
-    rows = [(k + 1, r) for k, r in enumerate(csv.reader(io.StringIO(text)))]
+    if len(text) > MAX_TABLE_BYTES:
+        raise TableError(f"{src}: {len(text):,} characters; at most {MAX_TABLE_BYTES:,} (cablekit.limits.MAX_TABLE_BYTES)")
+    rows = []
+    reader = csv.reader(io.StringIO(text))
+    try:
+        for k, r in enumerate(reader):
+            if any(len(cell) > MAX_TABLE_CELL for cell in r):
+                raise TableError(f"{src} line {reader.line_num}: a cell longer than {MAX_TABLE_CELL:,} characters "
+                                 "(cablekit.limits.MAX_TABLE_CELL)")
+            rows.append((k + 1, r))
+            if len(rows) > MAX_TABLE_ROWS + 1 + 1000:  # header and comment lines on top of the data rows
+                break
+    except csv.Error as exc:
+        raise TableError(f"{src} line {reader.line_num}: not a readable CSV ({exc})") from None
     rows = [(n, r) for n, r in rows if r and any(c.strip() for c in r) and not r[0].lstrip().startswith("#")]
     if not rows:
         raise TableError(f"{src}: empty file; expected a header row such as "
                          f"{', '.join(_hint(c) for c in columns if c.required)}")
     header_line, header = rows[0]
     data = rows[1:]
+    if len(data) > MAX_TABLE_ROWS:
+        raise TableError(f"{src}: more than {MAX_TABLE_ROWS:,} data rows (cablekit.limits.MAX_TABLE_ROWS); "
+                         "split the file")
     problems: list[str] = []
     found: dict[str, tuple[int, str]] = {}
     for k, cell in enumerate(header):
@@ -141,15 +171,22 @@ def read_table(path_or_text, columns: list[Column], *, source: str | None = None
             if c.dimension == "text":
                 out[name].append(cell)
                 continue
-            try:
-                v = float(cell)
-            except ValueError:
-                problems.append(f"{src} line {line}, column {name!r}: {cell!r} is not a number")
+            if not _CELL_NUMBER.fullmatch(cell):
+                problems.append(f"{src} line {line}, column {name!r}: {cell!r} is not a number "
+                                "(digits 0-9, optional sign, point and exponent)")
                 continue
+            v = float(cell)
             if not math.isfinite(v):
                 problems.append(f"{src} line {line}, column {name!r}: {cell!r} is not a finite number")
                 continue
-            out[name].append(v * factors[name] if c.dimension != "dimensionless" else v)
+            v = v * factors[name] if c.dimension != "dimensionless" else v
+            high = MAGNITUDE[c.dimension][1]
+            if not abs(v) <= high:
+                problems.append(f"{src} line {line}, column {name!r}: {cell!r} is larger than "
+                                f"{high:g}{(' ' + DIMENSIONS[c.dimension][0]) if DIMENSIONS[c.dimension][0] else ''} "
+                                "in size (cablekit.limits.MAGNITUDE)")
+                continue
+            out[name].append(v)
         if len(problems) >= 20:
             break
     if problems:

@@ -37,6 +37,7 @@ import numpy as np
 
 from .arm import mount_rotation, static_loads
 from .kinematics import cable_lengths, home_lengths, length_per_count, lengths_to_counts
+from .limits import MAX_TASK_SAMPLES
 from .practice import practice_value
 from .statics import TensionResult, tension_limits
 from .tables import Column, TableError, read_table, write_table
@@ -389,7 +390,13 @@ def check_task(design, targets: TaskTargets, *, move_step: float = 0.01, angle_s
             for name, v in jv.items():
                 per = angle_step if arm.joints[arm.names.index(name)].revolute else move_step
                 spans.append(abs(v[k] - v[k - 1]) / per)
-            count = max(2, int(math.ceil(max(spans))))
+            need = max(spans)
+            if not need <= MAX_TASK_SAMPLES - len(S.tips):
+                raise ValueError(f"the move {targets.labels[k - 1]!r} -> {targets.labels[k]!r} needs {need:.3g} checked "
+                                 f"poses at this step ({move_step * 1e3:g} mm, {math.degrees(angle_step):g} deg); a task "
+                                 f"may check at most {MAX_TASK_SAMPLES:,} poses (cablekit.limits.MAX_TASK_SAMPLES): "
+                                 "use a coarser --step or --angle-step")
+            count = max(2, int(math.ceil(need)))
             for i in range(count + 1):
                 s = i / count
                 S.add(*at(k, s, k - 1), holding=bool(closed[k - 1]), step=number, where=s,

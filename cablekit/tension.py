@@ -40,9 +40,13 @@ Paths: m = n has unique tensions: :func:`cablekit.statics.solve_square` in NumPy
 compiled for three cables, the same row reduction as below for a wrench box.  r = 1 and 2 use
 the candidate formula above, in a compiled kernel (row reduction with complete pivoting, then
 the candidates) when numba is installed and in NumPy (QR null space) otherwise; the tests hold
-every path to the others and to scipy's LP.  Larger redundancy, rank-deficient poses, and the
-rare pose whose optimal tensions are not a unique vertex go to the per-pose HiGHS linear
-program (:func:`cablekit.statics.solve_lp`), so the classification is always exact.
+every path to the others and to scipy's LP.  Where the optimum is tied (the optimal tensions
+form a segment, not a vertex: a binding dependency of only ``r`` cables, as at symmetric poses
+of box-shaped rigs, or the narrowest cable pinned at its centre) the tensions are the middle of
+the optimal interval along the line that binding fixes, checked to reach the margin.  Larger
+redundancy, rank-deficient poses and the rare pose that check still rejects go to the per-pose
+HiGHS linear program (:func:`cablekit.statics.solve_lp`), so the classification is always
+exact.  Poses marked ``singular`` (a cable of zero length) are not solved: no solution.
 
 References
 ----------
@@ -67,7 +71,7 @@ from itertools import combinations
 
 import numpy as np
 
-from .statics import TensionResult, solve_lp, solve_square
+from .statics import TensionResult, solve_lp, solve_square, without_singular
 
 __all__ = ["TensionDetail", "distribute", "box_generators", "box_vertices", "HAVE_NUMBA", "BACKENDS"]
 
@@ -205,6 +209,8 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
         det = np.where(det == 0, 1.0, det)
         ra, rb = rhs[rows, ja], rhs[rows, jb]
         lam = np.stack([(ra * nb[:, 1] - na[:, 1] * rb) / det, (na[:, 0] * rb - ra * nb[:, 0]) / det], axis=1)
+    if np.any(degenerate):  # a tied optimum: a point of the optimal segment instead of the vertex
+        lam, degenerate = _degenerate_lambda(Nn, cc, h, nom, lam, degenerate, single_n, hmin_i, aln, sn, Sn, cs)
     T = P[:, :, 0] + np.einsum("cir,cr->ci", Nn, lam)
     mt = np.min(np.minimum(T - t_min, t_max - T), axis=1)
     tol = 1e-9 * (1.0 + np.max(np.abs(t_max)))
@@ -231,6 +237,67 @@ def _numpy_block(W, Rhs, mid, h, t_min, t_max):
     return T, box, nom, lim, act_lo, act_hi, status
 
 
+def _interval_middle(f, g, room, tiny):
+    """Middle of ``{mu : |f_i + g_i mu| <= room_i for every i}`` (rows of (c, m) arrays).
+
+    Rows with ``|g_i| <= tiny`` do not bound ``mu``; a half-open set gives its one end, an
+    unbounded one ``mu = 0``.  At the optimal margin the set is not empty (up to round-off,
+    which the caller's check of the tensions catches).
+    """
+    use = np.abs(g) > tiny
+    gs = np.where(use, g, 1.0)
+    a = (-room - f) / gs
+    b = (room - f) / gs
+    lo = np.max(np.where(use, np.minimum(a, b), -np.inf), axis=1)
+    hi = np.min(np.where(use, np.maximum(a, b), np.inf), axis=1)
+    both = np.isfinite(lo) & np.isfinite(hi)
+    return np.where(both, 0.5 * (lo + hi), np.where(np.isfinite(lo), lo, np.where(np.isfinite(hi), hi, 0.0)))
+
+
+def _degenerate_lambda(Nn, cc, h, nom, lam, degenerate, single_n, hmin_i, aln, sn, Sn, cs):
+    """Optimal null-space coordinates where the optimum is not one vertex (NumPy path).
+
+    At the optimal margin ``s`` the feasible set of ``lam`` shrinks to a point, a segment or
+    (rarely) more.  A segment arises when the binding dependency involves only ``r`` cables (a
+    zero ``alpha``: for ``r = 2`` two cables with parallel null-space rows, as in symmetric poses
+    of box-shaped rigs) or when the narrowest cable sits at its centre (``s = min h``).  Then
+    ``lam`` lies on a known line (``r = 2``) or anywhere in an interval (``r = 1``), and every
+    cable bounds it to an interval along that line; the middle of their intersection is an
+    optimal point.  Returns the updated ``lam`` and the poses still unresolved (they go to the LP).
+    """
+    c_, m, r = Nn.shape
+    rows = np.arange(c_)
+    room = h[None, :] - nom[:, None]
+    tiny = 1e-12 * np.sqrt(np.max(np.sum(Nn * Nn, axis=2), axis=1))[:, None]
+    lam = lam.copy()
+    if r == 1:
+        sel = np.flatnonzero(degenerate)
+        mu = _interval_middle(cc[sel], Nn[sel, :, 0], room[sel], tiny[sel])
+        lam[sel, 0] = mu
+        return lam, np.zeros_like(degenerate)
+    # r = 2: the line n_a . lam = beta of the anchor cable a
+    zero = np.abs(aln) <= 1e-9 * Sn[:, None]
+    nzero = np.sum(zero, axis=1)
+    nrm = np.sum(Nn[rows[:, None], cs] ** 2, axis=2)  # (c, 3) squared null-space row norms of the triple
+    q = np.argmax(np.where(zero, -1.0, nrm), axis=1)  # the better-conditioned cable of the live pair
+    anchor = np.where(single_n, hmin_i, cs[rows, q])
+    sig = np.sign(aln[rows, q]) * sn
+    beta = np.where(single_n, -cc[:, hmin_i], sig * (h[anchor] - nom) - cc[rows, anchor])
+    na = Nn[rows, anchor]
+    nn = np.sum(na * na, axis=1)
+    line = degenerate & (single_n | (nzero == 1)) & (nn > tiny[:, 0] ** 2)
+    sel = np.flatnonzero(line)
+    if len(sel):
+        na, nn, beta = na[sel], nn[sel], beta[sel]
+        lam0 = na * (beta / nn)[:, None]
+        d = np.stack([-na[:, 1], na[:, 0]], axis=1) / np.sqrt(nn)[:, None]
+        g = np.einsum("cir,cr->ci", Nn[sel], d)
+        f = cc[sel] + np.einsum("cir,cr->ci", Nn[sel], lam0)
+        mu = _interval_middle(f, g, room[sel], tiny[sel])
+        lam[sel] = lam0 + mu[:, None] * d
+    return lam, degenerate & ~line
+
+
 def _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk):
     N, n, m = W.shape
     out = _alloc(N, m)
@@ -250,6 +317,15 @@ def _alloc(N, m):
 # --------------------------------------------------------------------------------------
 # the same test as a compiled kernel (numba): one pose at a time, no temporaries
 # --------------------------------------------------------------------------------------
+def _member_py(q, c0, c1, c2, a0, a1, a2):  # pragma: no cover - compiled by numba
+    """Cable and dependency coefficient of member ``q`` of a candidate subset kept as scalars."""
+    if q == 0:
+        return c0, a0
+    if q == 1:
+        return c1, a1
+    return c2, a2
+
+
 def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, status):  # pragma: no cover
     """Reduced row echelon form with complete pivoting, then the candidate subsets.
 
@@ -518,6 +594,77 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
                 det = Nn[la, 0] * Nn[lb, 1] - Nn[la, 1] * Nn[lb, 0]
                 lam[0] = (ra * Nn[lb, 1] - Nn[la, 1] * rb) / det
                 lam[1] = (Nn[la, 0] * rb - ra * Nn[lb, 0]) / det
+        if st == 1:
+            # a tied optimum (see _degenerate_lambda): the middle of the optimal interval along a
+            # line (r = 2) or of lam itself (r = 1)
+            tiny = 1e-12 * np.sqrt(nsc)
+            l00 = 0.0
+            l01 = 0.0
+            d0 = 1.0
+            d1 = 0.0
+            line = False
+            if r == 1:
+                line = True
+            else:
+                anchor = -1
+                beta = 0.0
+                if n_single:
+                    anchor = hmin_i
+                    beta = -cc[hmin_i]
+                else:
+                    nz = 0
+                    best = -1.0
+                    for q in range(3):
+                        l0, a0 = _member(q, ni0, nj0, nk0, na_i, na_j, na_k)
+                        if abs(a0) <= 1e-9 * n_S:
+                            nz += 1
+                        else:
+                            v = Nn[l0, 0] * Nn[l0, 0] + Nn[l0, 1] * Nn[l0, 1]
+                            if v > best:
+                                best = v
+                                anchor = l0
+                                beta = ((1.0 if a0 > 0 else -1.0) * n_sgn) * (h[l0] - bn) - cc[l0]
+                    if nz != 1:
+                        anchor = -1
+                if anchor >= 0:
+                    nn = Nn[anchor, 0] * Nn[anchor, 0] + Nn[anchor, 1] * Nn[anchor, 1]
+                    if nn > tiny * tiny:
+                        line = True
+                        l00 = Nn[anchor, 0] * (beta / nn)
+                        l01 = Nn[anchor, 1] * (beta / nn)
+                        sq = np.sqrt(nn)
+                        d0 = -Nn[anchor, 1] / sq
+                        d1 = Nn[anchor, 0] / sq
+            if line:
+                lo = -np.inf
+                hi = np.inf
+                for i in range(m):
+                    if r == 1:
+                        g = Nn[i, 0]
+                        f = cc[i]
+                    else:
+                        g = Nn[i, 0] * d0 + Nn[i, 1] * d1
+                        f = cc[i] + (Nn[i, 0] * l00 + Nn[i, 1] * l01)
+                    if abs(g) > tiny:
+                        room = h[i] - bn
+                        ea = (-room - f) / g
+                        eb = (room - f) / g
+                        lo = max(lo, min(ea, eb))
+                        hi = min(hi, max(ea, eb))
+                if np.isfinite(lo) and np.isfinite(hi):
+                    mu = 0.5 * (lo + hi)
+                elif np.isfinite(lo):
+                    mu = lo
+                elif np.isfinite(hi):
+                    mu = hi
+                else:
+                    mu = 0.0
+                if r == 1:
+                    lam[0] = mu
+                else:
+                    lam[0] = l00 + mu * d0
+                    lam[1] = l01 + mu * d1
+                st = 0
         if st == 0:
             mt = np.inf
             for i in range(m):
@@ -541,15 +688,7 @@ def _kernel_py(W, Rhs, mid, h, t_min, t_max, T, box, nom, lim, act_lo, act_hi, s
             best = -1.0
             lbest = bi0
             for q in range(r + 1):
-                if q == 0:
-                    l0 = bi0
-                    a0 = ba_i
-                elif q == 1:
-                    l0 = bj0
-                    a0 = ba_j
-                else:
-                    l0 = bk0
-                    a0 = ba_k
+                l0, a0 = _member(q, bi0, bj0, bk0, ba_i, ba_j, ba_k)
                 if abs(a0) > 1e-9 * b_S:
                     if a0 * b_sgn < 0:
                         act_lo[p, l0] = True
@@ -614,10 +753,11 @@ def _square3_py(W, w, mid, h, T, box, nom, lim, act_lo, act_hi, status):  # prag
 
 
 if _numba is not None:
+    _member = _numba.njit(cache=True, nogil=True, inline="always")(_member_py)
     _kernel = _numba.njit(cache=True, nogil=True)(_kernel_py)
     _square3 = _numba.njit(cache=True, nogil=True)(_square3_py)
 else:  # pragma: no cover
-    _kernel = _square3 = None
+    _member = _kernel = _square3 = None
 
 
 def _threads() -> int:
@@ -697,7 +837,7 @@ def _by_lp(W, w, D, t_min, t_max):
 
 
 def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto",
-               chunk: int = CHUNK) -> TensionDetail:
+               chunk: int = CHUNK, singular=None) -> TensionDetail:
     """Max-margin tensions, exact feasibility and margin for N poses.
 
     Parameters
@@ -710,6 +850,9 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
     backend : "auto" (compiled kernel when numba is installed, else NumPy), "numba",
         "numpy", or "lp" (the per-pose scipy HiGHS reference, slow).
     chunk : poses per chunk (NumPy temporaries; one compiled call per chunk and thread).
+    singular : optional (N,) bool, poses whose ``W`` is undefined (a cable of zero length, see
+        :func:`cablekit.kinematics.zero_length_cables`; their ``W`` may hold NaN).  They are
+        not solved and come back infeasible, "no solution / singular" (margin ``-inf``).
 
     Returns
     -------
@@ -733,12 +876,18 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
     N, n, m = W.shape
     if m < n:
         raise ValueError(f"{m} cables cannot hold {n} degrees of freedom (need m >= n)")
+    if singular is not None and np.any(singular):
+        return without_singular(lambda Ws, ws: distribute(Ws, ws, t_min, t_max, wrench_box=wrench_box,
+                                                          backend=backend, chunk=chunk), W, w_ext, singular)
     w = np.broadcast_to(np.asarray(w_ext, float), (N, n))
     t_min = np.broadcast_to(np.asarray(t_min, float), (m,)).copy()
     t_max = np.broadcast_to(np.asarray(t_max, float), (m,)).copy()
     for name, arr in (("W", W), ("w_ext", w), ("t_min", t_min), ("t_max", t_max)):
         if not np.all(np.isfinite(arr)):
-            raise ValueError(f"{name} contains NaN or infinite values")
+            where = f" (first at pose {int(np.argwhere(~np.isfinite(arr))[0, 0])})" if arr.ndim >= 2 else ""
+            hint = ("; a pose with a cable of zero length has no structure matrix: mark it with singular="
+                    if name == "W" else "")
+            raise ValueError(f"{name} contains NaN or infinite values{where}{hint}")
     D = np.zeros((0, n)) if wrench_box is None else box_generators(wrench_box, n)
     r = m - n
     mid = 0.5 * (t_max + t_min)
@@ -751,20 +900,20 @@ def distribute(W, w_ext, t_min, t_max, *, wrench_box=None, backend: str = "auto"
                              nominal_margin=nom, active_lower=lo, active_upper=hi, by_lp=np.ones(N, bool))
 
     use_numba = backend == "numba" or (backend == "auto" and _kernel is not None)
-    Rhs = None if (r == 0 and (len(D) == 0 or not use_numba)) else \
-        np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
     if r == 0 and n == 3 and len(D) == 0 and use_numba:
         T, margin, nom, lim, lo, hi, status = _run_square3(W, w, mid, h, chunk)
         path = "unique solution (m = n), compiled"
     elif r == 0 and not use_numba:
         T, margin, nom, lim, lo, hi, status = _square_numpy(W, w, D, mid, h, t_min, t_max)
         path = "unique solution (m = n)"
-    elif use_numba:
-        T, margin, nom, lim, lo, hi, status = _run_numba(W, Rhs, mid, h, t_min, t_max, chunk)
-        path = "unique solution (m = n), compiled" if r == 0 else f"exact null-space test (m - n = {r}), compiled"
-    else:
-        T, margin, nom, lim, lo, hi, status = _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk)
-        path = f"exact null-space test (m - n = {r}), NumPy"
+    else:  # the general kernel: right-hand sides are the load and the box generators
+        Rhs = np.concatenate([-w[:, :, None], np.broadcast_to(D.T, (N, n, len(D)))], axis=2)
+        if use_numba:
+            T, margin, nom, lim, lo, hi, status = _run_numba(W, Rhs, mid, h, t_min, t_max, chunk)
+            path = "unique solution (m = n), compiled" if r == 0 else f"exact null-space test (m - n = {r}), compiled"
+        else:
+            T, margin, nom, lim, lo, hi, status = _run_numpy(W, Rhs, mid, h, t_min, t_max, chunk)
+            path = f"exact null-space test (m - n = {r}), NumPy"
 
     # the exact fallback: LP for rank-deficient poses; LP tensions where the optimum is not a vertex
     full = np.flatnonzero(status == _BY_LP)

@@ -23,6 +23,7 @@ __all__ = [
     "format_vector",
     "to_unit",
     "unit_factor",
+    "unit_text_problem",
 ]
 
 # One spelling per dimension: the SI unit we write back, and the pint dimensionality.
@@ -48,7 +49,8 @@ DIMENSIONS: dict[str, tuple[str, str]] = {
 }
 
 _MAX_TEXT = 120
-_NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+# ASCII digits only: Python's \d and float() also take Arabic-Indic or full-width digits
+_NUMBER = r"[-+]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][-+]?[0-9]+)?"
 _VECTOR_TEXT = re.compile(rf"^\s*\[?\s*((?:{_NUMBER}\s*,\s*)+{_NUMBER})\s*\]?\s*(.*?)\s*$")
 
 
@@ -114,6 +116,7 @@ def parse_quantity(text, dimension: str, *, field: str = "value") -> float:
     if len(text) > _MAX_TEXT:
         raise UnitError(f"{field}: quantity text longer than {_MAX_TEXT} characters")
     cleaned = _clean(text)
+    _refuse_foreign_digits(text, field)
     if not cleaned:
         raise UnitError(f"{field}: empty quantity; expected e.g. '{_example(dimension)}'")
     match = re.match(rf"^\s*({_NUMBER})\s*(.*)$", cleaned)
@@ -128,17 +131,110 @@ def parse_quantity(text, dimension: str, *, field: str = "value") -> float:
         raise UnitError(f"{field}: {text!r} is not a finite number")
     if not unit_text:
         if dimension == "dimensionless":
-            return number
+            return _in_range(number, dimension, field, text)
         raise UnitError(f"{field}: missing unit in {text!r}; expected e.g. '{_example(dimension)}'")
-    if not re.fullmatch(r"[A-Za-z_*/()0-9.\s^-]+", unit_text) or "__" in unit_text:
-        raise UnitError(f"{field}: unknown unit {unit_text!r} in {text!r}")
+    if dimension == "dimensionless":
+        raise UnitError(f"{field}: {text!r} takes no unit; write a plain number such as '{_example(dimension)}'")
+    problem = unit_text_problem(unit_text)
+    if problem is not None:
+        raise UnitError(f"{field}: {problem} in {text!r}")
     factor, problem = _unit_factor_for(unit_text, dimension)
     if problem is not None:
         raise UnitError(f"{field}: " + problem.replace("{text}", repr(text)))
     value = number * factor
     if not math.isfinite(value):
         raise UnitError(f"{field}: {text!r} overflows to a non-finite value")
+    return _in_range(value, dimension, field, text)
+
+
+def _in_range(value: float, dimension: str, field: str, text) -> float:
+    """``value`` if its size is within the largest of :data:`cablekit.limits.MAGNITUDE`.
+
+    (The smallest applies to sizes only, see ``design._Collector.quantity``: a coordinate such
+    as 2e-16 m is float noise around zero, not a slip.)
+    """
+    from .limits import MAGNITUDE
+
+    high = MAGNITUDE[dimension][1]
+    if abs(value) > high:
+        si = DIMENSIONS[dimension][0]
+        raise UnitError(f"{field}: {text!r} is larger than any {dimension.replace('_', ' ')} cablekit accepts "
+                        f"({high:g}{(' ' + si) if si else ''} in size, cablekit.limits.MAGNITUDE; a unit slip?)")
     return value
+
+
+def _refuse_foreign_digits(text: str, field: str) -> None:
+    import unicodedata
+
+    for ch in text:
+        if not ch.isascii() and unicodedata.category(ch) == "Nd":
+            raise UnitError(f"{field}: {text!r} contains the digit {ch!r} ({unicodedata.name(ch, 'non-ASCII')}); "
+                            "write numbers with the digits 0-9")
+
+
+_UNIT_TOKEN = re.compile(r"\s*(?:([A-Za-z_][A-Za-z_0-9]*)|([0-9]+(?:\.[0-9]*)?)|(\*\*|\^|\*|/|\(|\)|-))", re.ASCII)
+
+
+def unit_text_problem(unit_text: str) -> str | None:
+    """Why a unit text is refused before pint sees it, or ``None`` when it may be parsed.
+
+    Only names, ``*``, ``/``, parentheses and powers by a small whole number are accepted, within
+    the size limits of :mod:`cablekit.limits` (pint evaluates ``m**9**9**9`` exactly, which takes
+    minutes).
+    """
+    from .limits import MAX_UNIT_DEPTH, MAX_UNIT_EXPONENT, MAX_UNIT_TEXT, MAX_UNIT_TOKENS
+
+    if len(unit_text) > MAX_UNIT_TEXT:
+        return f"unit text longer than {MAX_UNIT_TEXT} characters"
+    if "__" in unit_text:
+        return f"unknown unit {unit_text!r}"
+    tokens: list[tuple[str, str]] = []
+    pos, end = 0, len(unit_text.rstrip())
+    while pos < end:
+        m = _UNIT_TOKEN.match(unit_text, pos)
+        if m is None or m.end() == pos:
+            return f"unknown unit {unit_text!r}"
+        kind = "name" if m.group(1) else "number" if m.group(2) else m.group(3)
+        tokens.append((kind, m.group(m.lastindex)))
+        pos = m.end()
+    if len(tokens) > MAX_UNIT_TOKENS:
+        return f"unit {unit_text!r} has more than {MAX_UNIT_TOKENS} parts"
+    depth = 0
+    powered = [False]  # per open group: does it contain a power already?
+    k = 0
+    while k < len(tokens):
+        kind, tok = tokens[k]
+        if kind == "(":
+            depth += 1
+            if depth > MAX_UNIT_DEPTH:
+                return f"unit {unit_text!r} nests parentheses deeper than {MAX_UNIT_DEPTH}"
+            powered.append(False)
+        elif kind == ")":
+            if depth == 0:
+                return f"unbalanced parentheses in unit {unit_text!r}"
+            depth -= 1
+            inner = powered.pop()
+            if k + 1 < len(tokens) and tokens[k + 1][0] in ("**", "^") and inner:
+                return f"unit {unit_text!r} raises a power to a power; write one exponent per unit"
+        elif kind in ("**", "^"):
+            if k == 0 or tokens[k - 1][0] not in ("name", ")"):
+                return f"misplaced power in unit {unit_text!r}"
+            k += 1
+            if k < len(tokens) and tokens[k][0] == "-":
+                k += 1
+            if k >= len(tokens) or tokens[k][0] != "number" or "." in tokens[k][1]:
+                return f"unit {unit_text!r}: an exponent must be a whole number such as 2"
+            if k + 1 < len(tokens) and tokens[k + 1][0] in ("**", "^"):
+                return f"unit {unit_text!r} chains exponents; write one exponent per unit"
+            if int(tokens[k][1]) > MAX_UNIT_EXPONENT:
+                return f"unit {unit_text!r}: exponent {tokens[k][1]} is larger than {MAX_UNIT_EXPONENT}"
+            powered[-1] = True
+        elif kind == "-":
+            return f"unknown unit {unit_text!r} ('-' only as the sign of an exponent)"
+        k += 1
+    if depth:
+        return f"unbalanced parentheses in unit {unit_text!r}"
+    return None
 
 
 @lru_cache(maxsize=1024)
@@ -151,9 +247,16 @@ def _unit_factor_for(unit_text: str, dimension: str) -> tuple[float, str | None]
         return math.nan, f"unknown unit {unit_text!r} in {{text}} ({type(exc).__name__})"
     quantity = ureg.Quantity(1.0, unit)
     want = _pint_dimensionality(dimension)
-    if quantity.dimensionality != want:
+    # pint counts radians as dimensionless, so "5 deg" would pass as a ratio and "50 Hz" as a
+    # rotational speed; the power of radian tells angles and turns from plain ratios and rates
+    turns = dict(quantity.to_base_units()._units).get("radian", 0)
+    want_turns = 1 if dimension in ("angle", "angular_speed") else 0
+    if quantity.dimensionality != want or turns != want_turns:
+        got = str(quantity.dimensionality) if quantity.dimensionality else "dimensionless"
+        if turns != want_turns:
+            got = f"{got} ({'an angle or turns' if turns else 'no angle'}, unit {unit_text!r})"
         return math.nan, (f"{{text}} has the wrong dimension: expected {dimension.replace('_', ' ')} "
-                          f"(e.g. '{_example(dimension)}'), got {quantity.dimensionality or 'dimensionless'}")
+                          f"(e.g. '{_example(dimension)}'), got {got}")
     si = DIMENSIONS[dimension][0] or "dimensionless"
     return float(quantity.to(si).magnitude), None
 
@@ -204,7 +307,11 @@ def to_unit(value, unit: str):
 def unit_factor(unit: str) -> float:
     """SI value of one ``unit`` (``unit_factor("mm") == 0.001``, ``unit_factor("rpm")`` in rad/s)."""
     ureg = _registry()
-    return float(ureg.Quantity(1.0, ureg.parse_units(_clean(unit).replace("^", "**"))).to_base_units().magnitude)
+    text = _clean(unit)
+    problem = unit_text_problem(text)
+    if problem is not None:
+        raise UnitError(problem)
+    return float(ureg.Quantity(1.0, ureg.parse_units(text.replace("^", "**"))).to_base_units().magnitude)
 
 
 _EXAMPLES = {

@@ -24,7 +24,8 @@ bit  name            meaning
 8    interference    two cable segments closer than the sum of their radii
 16   body            a cable passes through the platform body box
 32   obstacle        a cable passes through a declared obstacle box
-64   no_solution     no tensions balance the load at all (singular pose)
+64   no_solution     no tensions balance the load at all (singular pose, e.g. an attachment at its exit)
+128  stated          the best tensions need more than a tension limit stated in the design
 ===  ==============  ===========================================================
 
 "Best tensions" are the max-margin tensions at the worst wrench of the box; the tension bits
@@ -66,7 +67,7 @@ import numpy as np
 
 from .checks import Check, judge
 from .design import atomic_write_bytes
-from .kinematics import structure_matrix
+from .kinematics import structure_matrix, zero_length_cables
 from .practice import PRACTICE, practice_value
 from .region import task_poses
 from .statics import external_wrench, rotation_matrices, tension_limits
@@ -90,10 +91,11 @@ CHUNK = 8192  # poses per step of the map (progress is reported after each)
 
 # name -> (bit, label); the order is the order of precedence when one reason is shown
 REASONS: dict[str, tuple[int, str]] = {
-    "no_solution": (64, "no tensions balance the load"),
+    "no_solution": (64, "no solution / singular pose"),
     "interference": (8, "cables touch each other"),
     "body": (16, "cable through the platform body"),
     "obstacle": (32, "cable through an obstacle"),
+    "stated": (128, "over the stated tension limit"),
     "motor": (4, "over the motor limit"),
     "rope": (2, "over the rope limit"),
     "slack": (1, "a cable goes slack"),
@@ -107,6 +109,7 @@ COLOURS = {
     "interference": "#7b4fa0",
     "body": "#8a8f98",
     "obstacle": "#3b5b7a",
+    "stated": "#b0478a",
     "motor": "#e0662b",
     "rope": "#a8232f",
     "slack": "#e8b93b",
@@ -606,6 +609,7 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
     tensions = np.empty((N, m))
     methods, lp_poses = set(), 0
     motor = np.array([x == "motor" for x in lim.limited_by])
+    stated = np.array([x == "stated" for x in lim.limited_by])
     loaded = bool(np.any(box > 0) or np.any(extra != 0))  # else the static map is the same map
     if progress is not None:
         progress(0, N)
@@ -614,9 +618,10 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         q = q_all[s:e]
         W = structure_matrix(design, q)
         w_g = external_wrench(design, q)
+        sing = np.any(zero_length_cables(design, q), axis=1)  # attachment at an exit: no solution / singular
         res = distribute(W, w_g + extra, lim.t_min, lim.t_max, wrench_box=box if np.any(box > 0) else None,
-                         backend=backend)
-        stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend) if loaded else res
+                         backend=backend, singular=sing)
+        stat = distribute(W, w_g, lim.t_min, lim.t_max, backend=backend, singular=sing) if loaded else res
         methods.add(res.method.split("; ")[1])
         lp_poses += int(res.by_lp.sum()) + (int(stat.by_lp.sum()) if loaded else 0)
         clearance, body, obstacle = _geometry(design, q, pairs)
@@ -625,7 +630,8 @@ def compute_workspace(design, *, step: float | None = None, orientations=None, e
         rs |= np.where(bad & ~np.isfinite(res.margin), REASON_BITS["no_solution"], 0).astype(np.uint8)
         tb = bad & np.isfinite(res.margin)
         rs |= np.where(tb & np.any(res.active_lower, axis=1), REASON_BITS["slack"], 0).astype(np.uint8)
-        rs |= np.where(tb & np.any(res.active_upper & ~motor, axis=1), REASON_BITS["rope"], 0).astype(np.uint8)
+        rs |= np.where(tb & np.any(res.active_upper & ~motor & ~stated, axis=1), REASON_BITS["rope"], 0).astype(np.uint8)
+        rs |= np.where(tb & np.any(res.active_upper & stated, axis=1), REASON_BITS["stated"], 0).astype(np.uint8)
         rs |= np.where(tb & np.any(res.active_upper & motor, axis=1), REASON_BITS["motor"], 0).astype(np.uint8)
         rs |= np.where(clearance < 0, REASON_BITS["interference"], 0).astype(np.uint8)
         rs |= np.where(body, REASON_BITS["body"], 0).astype(np.uint8)

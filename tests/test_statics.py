@@ -176,3 +176,95 @@ def test_cramer_path_matches_lapack_solve(greenhouse):
     cond = np.linalg.cond(W[ok])
     err = np.max(np.abs(t[ok] - ref), axis=1) / np.maximum(np.max(np.abs(ref), axis=1), 1e-300)
     assert np.all(err <= 1e-13 * cond)
+
+
+# --------------------------------------------------------------------------------------
+# stated tension limits: [cable] max_tension, per-cable min_tension / max_tension
+# --------------------------------------------------------------------------------------
+def _greenhouse_text(cable_extra="", exit0_extra=""):
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[1] / "examples" / "greenhouse_tray_3cable.toml").read_text()
+    text = text.replace("[cable]\n", f"[cable]\n{cable_extra}\n", 1)
+    i = text.index("[[frame.exits]]")
+    j = text.index("\n", text.index("position", i))
+    return text[:j + 1] + exit0_extra + "\n" + text[j + 1:]
+
+
+def test_stated_limits_take_the_lowest_and_say_which(greenhouse):
+    # greenhouse winch: motor pull 0.25 N*m * 5 * 0.85 / 0.026 m = 40.87 N (worked by hand, see
+    # test_motor_limited_force_by_hand); rope 2.4 kN / 5 = 480 N
+    motor = 0.25 * 5 * 0.85 / 0.026
+    base = tension_limits(greenhouse)
+    assert base.limited_by == ("motor",) * 3 and np.all(np.isinf(base.stated_limit))
+    d = loads_design(_greenhouse_text('max_tension = "30 N"', 'min_tension = "4 N"\nmax_tension = "25 N"'))
+    lim = tension_limits(d)
+    np.testing.assert_allclose(lim.t_max, [25.0, 30.0, 30.0], rtol=1e-12)
+    np.testing.assert_allclose(lim.t_min, [4.0, 3.0, 3.0], rtol=1e-12)
+    assert lim.limited_by == ("stated",) * 3
+    d2 = loads_design(_greenhouse_text('max_tension = "100 N"'))  # above the motor's pull: the motor limits
+    lim2 = tension_limits(d2)
+    np.testing.assert_allclose(lim2.t_max, motor, rtol=1e-12)
+    assert lim2.limited_by == ("motor",) * 3 and np.all(lim2.stated_limit == 100.0)
+    # the fields survive saving and loading
+    from cablekit.design import dumps_design
+
+    again = tension_limits(loads_design(dumps_design(d)))
+    np.testing.assert_allclose(again.t_max, lim.t_max, rtol=1e-12)
+    np.testing.assert_allclose(again.t_min, lim.t_min, rtol=1e-12)
+    # and check prints which one limits
+    from cablekit.commands.check import summary_lines
+
+    assert any("(stated)" in line and "4.0" in line for line in summary_lines(d)[0])
+    # and so does the review sheet's rig part
+    from cablekit.review import _rig_part
+
+    q = {x.key: x for x in _rig_part(d, {}, lambda _: None).quantities}
+    name = d.cable_names[0]
+    assert q[f"stated_limit:{name}"].low == 25.0 and "stated max_tension" in q[f"t_max:{name}"].label
+    from cablekit.review import _render_inputs
+
+    inputs = _render_inputs(d)
+    assert "stated tension limit (max_tension)</th><td>30 N" in inputs
+    assert f"<td>{name}</td><td>4 N</td><td>25 N</td>" in inputs
+
+
+@pytest.mark.parametrize("cable_extra, exit0_extra, path, fragment", [
+    ('max_tension = "-5 N"', "", "cable.max_tension", "greater than zero"),
+    ('max_tension = "30"', "", "cable.max_tension", "unit"),
+    ('max_tension = "30 N"', 'min_tension = "35 N"', "frame.exits[0].min_tension", "stated max_tension 30 N"),
+    ("", 'min_tension = "9 N"\nmax_tension = "8 N"', "frame.exits[0].min_tension", "stated max_tension 8 N"),
+    ("", 'max_tension = "2 m"', "frame.exits[0].max_tension", ""),
+    ('max_tension = "2 N"', "", "cable.min_tension", "stated max_tension 2 N"),  # shared: reported once
+])
+def test_bad_stated_limits_name_the_field(cable_extra, exit0_extra, path, fragment):
+    from cablekit.design import DesignError
+
+    with pytest.raises(DesignError) as exc:
+        loads_design(_greenhouse_text(cable_extra, exit0_extra))
+    probs = [p for p in exc.value.problems if p.path == path]
+    assert len(probs) == 1 and fragment in str(probs[0])
+
+
+def test_a_stated_limit_fails_poses_the_motor_would_hold(greenhouse):
+    # must fail: a 14 N stated limit (below the 40.9 N motor pull; task tensions reach about
+    # 17 N) rejects task poses that hold without it, with the reason "stated"; the tensions are
+    # the unique m = n solution, checked against scipy.optimize.linprog (HiGHS), same limits
+    from dataclasses import replace
+
+    from cablekit.workspace import REASON_BITS, compute_workspace
+
+    d = loads_design(_greenhouse_text('max_tension = "14 N"'))
+    free = compute_workspace(greenhouse, step=0.1)
+    held = compute_workspace(d, step=0.1)
+    newly = free.feasible & ~held.feasible
+    assert newly.any() and held.feasible.any()
+    assert np.all(held.reasons[newly] & REASON_BITS["stated"])
+    assert not np.any(held.reasons & (REASON_BITS["rope"] | REASON_BITS["motor"]))
+    assert np.all(np.nanmax(held.tensions[newly], axis=1) > 14.0)
+    lim = tension_limits(d)
+    q = held.poses[newly]
+    ref = solve_lp(structure_matrix(d, q), external_wrench(d, q), lim.t_min, lim.t_max)
+    assert not ref.feasible.any()
+    assert "over the stated tension limit" in "\n".join(held.summary())
+    assert replace(d.cable, max_tension=None) == greenhouse.cable

@@ -253,3 +253,122 @@ def test_three_redundant_cables_use_the_exact_lp():
     res = distribute(W, np.array([-5.0]), 1.0, 11.0)
     assert res.by_lp.all() and "linear program" in res.method
     assert res.margin[0] == pytest.approx(15 / 4, abs=1e-7)
+
+
+# --------------------------------------------------------------------------------------
+# rigs of the kind an independent check used: box to box, plain grids, singular corners
+# --------------------------------------------------------------------------------------
+DATA = Path(__file__).resolve().parent / "data"
+
+
+@pytest.fixture(scope="module")
+def loft_grid():
+    """The 9 x 9 x 9 grid of a box-to-box 8-cable rig (identity orientation, gravity only).
+
+    Its eight corners put an attachment exactly at an exit (singular poses)."""
+    from cablekit.kinematics import zero_length_cables
+    from cablekit.region import task_poses
+
+    d = load_design(DATA / "loft_box_8cable.toml")
+    q = task_poses(d).poses
+    assert q.shape == (729, 6)
+    sing = np.any(zero_length_cables(d, q), axis=1)
+    return d, q, sing
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_plain_grid_of_a_box_to_box_rig_stays_on_the_exact_fast_path(loft_grid, backend):
+    # Symmetric poses of a box-to-box rig tie: the binding dependency involves two cables with
+    # parallel null-space rows, so the optimal tensions are a segment, not a vertex.  Those poses
+    # once went to the per-pose LP (about half the grid); now under 1 % may.
+    # Reference: scipy.optimize.linprog (HiGHS), pose by pose, for verdict and margin.
+    d, q, sing = loft_grid
+    assert int(sing.sum()) == 8
+    q = q[~sing]
+    fast = margins(d, q, backend)
+    assert fast.by_lp.mean() < 0.01, f"{int(fast.by_lp.sum())} of {len(q)} poses by LP"
+    assert 0.1 < np.mean(fast.feasible) < 0.9
+    _agree(d, q, fast)
+
+
+def test_singular_poses_are_classified_not_raised(loft_grid):
+    # an attachment exactly at its exit: that cable's direction is undefined (NaN column of W)
+    d, q, sing = loft_grid
+    lim = tension_limits(d)
+    W, w = structure_matrix(d, q), external_wrench(d, q)
+    assert not np.all(np.isfinite(W[sing]))
+    with pytest.raises(ValueError, match="first at pose .*singular="):
+        distribute(W, w, lim.t_min, lim.t_max)
+    res = distribute(W, w, lim.t_min, lim.t_max, singular=sing)
+    assert not res.feasible[sing].any() and np.all(res.margin[sing] == -np.inf)
+    assert np.all(res.limiting_cable[sing] == -1) and np.isnan(res.tensions[sing]).all()
+    assert "8 pose(s) no solution / singular" in res.method
+    rest = distribute(W[~sing], w[~sing], lim.t_min, lim.t_max)  # the other poses as if alone
+    assert np.array_equal(res.feasible[~sing], rest.feasible)
+    assert np.array_equal(res.margin[~sing], rest.margin)
+    # tensions_at finds them itself, on both paths (scipy HiGHS as the reference for the rest)
+    for method in ("auto", "lp"):
+        r = tensions_at(d, q[::7], method=method)
+        s7 = sing[::7]
+        assert s7.any() and not r.feasible[s7].any() and np.all(r.margin[s7] == -np.inf)
+    ref = tensions_at(d, q[::7], method="lp")
+    assert np.array_equal(tensions_at(d, q[::7]).feasible, ref.feasible)
+
+
+def test_six_cable_rigid_rig_maps_on_every_path():
+    # m = n = 6 once reached the compiled kernel without right-hand sides (TypeError).  The
+    # unique tensions are checked against numpy.linalg.solve (LAPACK gesv) and scipy's linprog.
+    from cablekit.workspace import compute_workspace
+
+    d = load_design(DATA / "orchard_plate_6cable.toml")
+    assert d.m == d.dof == 6
+    q = random_poses(d, 300, np.random.default_rng(12), tilt_deg=8.0)
+    lim = tension_limits(d)
+    W, w = structure_matrix(d, q), external_wrench(d, q)
+    t_ref = np.linalg.solve(W, -w[..., None])[..., 0]
+    lp = solve_lp(W, w, lim.t_min, lim.t_max)
+    for backend in BACKENDS:
+        for box in (None, np.r_[2.0, 2.0, 2.0, 0.1, 0.1, 0.1]):
+            res = margins(d, q, backend, box)
+            assert np.allclose(res.tensions, t_ref, atol=1e-8)
+            if box is None:
+                assert np.array_equal(res.feasible, lp.feasible)
+                assert np.allclose(res.margin, lp.margin, atol=1e-6)
+            else:  # the box margin is the least margin of its 64 vertices (Bosscher et al. 2006)
+                verts = box_vertices(w, box)
+                tv = np.linalg.solve(W[:, None], -verts[..., None])[..., 0]  # (N, 64, 6)
+                vm = np.min(np.minimum(tv - lim.t_min, lim.t_max - tv), axis=2).min(axis=1)
+                assert np.allclose(res.margin, vm, atol=1e-8)
+        ws = compute_workspace(d, backend=backend)
+        assert 0 < ws.coverage < 1 and len(ws.poses) == 882
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_tied_optima_are_solved_exactly_on_the_fast_path(backend):
+    # Two ways the optimal tensions form a segment instead of a vertex: (a) the other six cables'
+    # columns span only five dimensions, so a dependency binds cables 6 and 7 alone; (b) one cable
+    # has a 2 mN range and must sit at its centre (margin = its half-range).  Both once went to
+    # the per-pose LP (241 of 3000 and every pose); verdict and margin against
+    # scipy.optimize.linprog (HiGHS), and the tensions must balance the load and reach the margin.
+    rng = np.random.default_rng(0)
+    N = 600
+    W = rng.normal(size=(N, 6, 8))
+    W[:, :, 5] = np.einsum("nij,nj->ni", W[:, :, :5], rng.normal(size=(N, 5)))
+    w = -np.einsum("nij,nj->ni", W, rng.uniform(5, 60, (N, 8))) + rng.normal(0, 20, (N, 6))
+    lo, hi = np.full(8, 10.0), np.full(8, 50.0)
+    W2 = rng.normal(size=(N, 6, 8))
+    t2 = rng.uniform(12, 48, (N, 8))
+    t2[:, 2] = 30.001
+    w2 = -np.einsum("nij,nj->ni", W2, t2)
+    lo2, hi2 = lo.copy(), hi.copy()
+    lo2[2], hi2[2] = 30.0, 30.002
+    for Wc, wc, a, b in ((W, w, lo, hi), (W2, w2, lo2, hi2)):
+        res = distribute(Wc, wc, a, b, backend=backend)
+        ref = solve_lp(Wc, wc, a, b)
+        assert not res.by_lp.any()
+        assert np.array_equal(res.feasible, ref.feasible) and 0 < ref.feasible.sum()
+        assert np.allclose(res.margin, ref.margin, rtol=0, atol=1e-6)  # HiGHS tolerance, about 1e-7 relative
+        assert np.allclose(np.einsum("nij,nj->ni", Wc, res.tensions) + wc, 0, atol=1e-8)
+        own = np.min(np.minimum(res.tensions - a, b - res.tensions), axis=1)
+        assert np.allclose(own, res.margin, atol=1e-7)
+    assert np.allclose(res.margin, 0.001, atol=1e-9)  # (b): every pose holds with cable 3 centred

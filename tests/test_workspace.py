@@ -334,3 +334,55 @@ def test_map_without_numba_is_the_same_map(demo, monkeypatch):
     assert "compiled" not in plain.method
     assert np.array_equal(plain.reasons, compiled.reasons)
     assert np.allclose(plain.margin, compiled.margin, atol=1e-8)
+
+
+# --------------------------------------------------------------------------------------
+# a task region reaching the exits: singular poses are classified, the rest mapped
+# --------------------------------------------------------------------------------------
+LOFT = Path(__file__).resolve().parent / "data" / "loft_box_8cable.toml"
+
+
+def test_attachment_at_an_exit_is_no_solution_and_the_rest_is_mapped(tmp_path, capsys):
+    # the loft rig's task box corners put an attachment exactly on a frame corner (zero-length cable)
+    from cablekit.commands.check import exit_contact_warnings
+    from cablekit.statics import solve_lp
+
+    d = load_design(LOFT)
+    ws = compute_workspace(d, extra_wrench=[0.0, 0.0, -5.0, 0.0, 0.0, 0.0])  # both the loaded and the static map
+    sing = has(ws, "no_solution")
+    assert int(sing.sum()) == 8 and ws.primary_reason()[sing].tolist() == ["no_solution"] * 8
+    corners = {tuple(np.round(p, 6)) for p in ws.poses[sing, :3]}
+    assert corners == {(x, y, z) for x in (0.2, 3.8) for y in (0.15, 3.75) for z in (0.1, 3.7)}
+    assert np.all(np.isfinite(ws.margin[~sing])) and not ws.static_feasible[sing].any()
+    # the other poses keep their exact verdicts (scipy.optimize.linprog, HiGHS, as the reference)
+    q = ws.poses[~sing][::9]
+    lim = tension_limits(d)
+    ref = solve_lp(structure_matrix(d, q), external_wrench(d, q, extra=[0, 0, -5.0, 0, 0, 0]), lim.t_min, lim.t_max)
+    geometry = REASON_BITS["interference"] | REASON_BITS["body"] | REASON_BITS["obstacle"]
+    assert np.array_equal(ws.feasible[~sing][::9], ref.feasible & ((ws.reasons[~sing][::9] & geometry) == 0))
+    # check warns, once per touched exit; a region clear of the exits gets no such warning
+    assert len(exit_contact_warnings(d)) == 8
+    assert exit_contact_warnings(load_design(SANDER)) == []
+    g = load_design(GREENHOUSE)  # a point platform: a task point on an exit
+    touching = replace(g, task=replace(g.task, points=(tuple(g.exits[1]),)))
+    assert [w.split(":")[0] for w in exit_contact_warnings(touching)] == [f"the task region touches exit {g.cable_names[1]}"]
+    assert main(["check", str(LOFT)]) == 0
+    assert "the task region touches exit B1" in capsys.readouterr().out
+    assert main(["workspace", str(LOFT), "-o", str(tmp_path / "loft.npz"), "--quiet"]) == 0
+    assert "no solution / singular pose 8" in capsys.readouterr().out
+    pts = tmp_path / "loft_points.csv"
+    pts.write_text("x [m],y [m],z [m],roll [deg],pitch [deg],yaw [deg]\n2,1.95,1.9,0,0,0\n0.2,0.15,0.1,0,0,0\n")
+    assert main(["points", str(LOFT), str(pts)]) == 0
+    assert "row 2: no solution / singular: cable B1 has zero length" in capsys.readouterr().out
+
+
+def test_singular_corners_do_not_break_the_error_model():
+    # the first-order error model once stopped with "SVD did not converge" on the NaN Jacobian
+    # of a zero-length cable; the pose is infeasible (no solution) and the others are computed
+    from cablekit.accuracy import linear_model
+
+    d = load_design(LOFT)
+    q = np.array([[0.2, 0.15, 0.1, 0, 0, 0], [2.0, 1.95, 1.9, 0, 0, 0]])
+    model = linear_model(d, q)
+    assert model.feasible.tolist() == [False, True]
+    assert np.all(np.isfinite(model.sensitivity[1])) and np.all(np.isfinite(model.bias_by_source[1]))

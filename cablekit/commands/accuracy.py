@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity, output_path
 from ..design import load_design
 
 NAME = "accuracy"
@@ -61,11 +61,18 @@ def run(args) -> int:
             raise InputError(f"--{name.replace('_', '-')}: must be at least 1, got {getattr(args, name)}")
     if args.mc_samples < 0:
         raise InputError(f"--mc-samples: must not be negative, got {args.mc_samples}")
-    out = Path(args.output) if args.output else Path(Path(args.design).stem + ".accuracy.npz")
-    if out.suffix != ".npz":
-        raise InputError(f"{out}: the map is written as .npz; give a name ending in .npz")
-    if out.resolve() == Path(args.design).resolve():
-        raise InputError(f"{out}: refusing to overwrite the design file")
+    from .. import limits
+
+    for name, cap in (("max_poses", limits.MAX_GRID_POSES), ("builds", limits.MAX_BUILDS),
+                      ("mc_samples", limits.MAX_MC_SAMPLES), ("mc_poses", limits.MAX_MC_POSES)):
+        if getattr(args, name) > cap:
+            raise InputError(f"--{name.replace('_', '-')}: at most {cap:,} (cablekit.limits), got {getattr(args, name):,}")
+    if args.builds * args.max_poses > limits.MAX_BUILD_EVALUATIONS:
+        raise InputError(f"--builds x --max-poses: at most {limits.MAX_BUILD_EVALUATIONS:,} pose evaluations "
+                         f"(cablekit.limits.MAX_BUILD_EVALUATIONS), got {args.builds * args.max_poses:,}")
+    out = output_path(args.output or Path(args.design).stem + ".accuracy.npz", "-o/--output",
+                      inputs=[args.design], suffixes=(".npz",))
+    html = output_path(args.html, "--html", inputs=[args.design, out], suffixes=(".html", ".htm"))
     try:
         res = accuracy_map(d, step=step, builds=args.builds, monte_carlo_samples=args.mc_samples,
                            monte_carlo_poses=args.mc_poses, seed=args.seed, max_poses=args.max_poses,
@@ -78,9 +85,9 @@ def run(args) -> int:
         print(f"  [{c.status}] {c.title}: {c.value:.3f} {c.unit} (limit {c.limit:.3f} {c.unit})")
     res.save(out)
     print(f"wrote {out}")
-    if args.html:
+    if html:
         from ..design import atomic_write_text
 
-        atomic_write_text(args.html, res.figure().to_html(include_plotlyjs=True, full_html=True))
-        print(f"wrote {args.html}")
+        atomic_write_text(html, res.figure().to_html(include_plotlyjs=True, full_html=True))
+        print(f"wrote {html}")
     return EXIT_CHECK_FAILED if any(c.status == FAIL for c in checks) else EXIT_OK

@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
-from ..cli import EXIT_OK, InputError
+from ..cli import EXIT_OK, InputError, output_path
 
 NAME = "calibrate"
 HELP = "identify exit points, home lengths and drum scale from measured positions; write a corrected design"
@@ -35,11 +33,8 @@ def run(args) -> int:
     if bad or not groups:
         raise InputError(f"--params: unknown group(s) {', '.join(bad) or '(none given)'}; choose from {', '.join(GROUPS)}")
     d = load_design(args.design)
-    out = Path(args.output) if args.output else calibrated_path(args.design)
-    if out.resolve() == Path(args.design).resolve():
-        raise InputError(f"{out}: refusing to overwrite the original design; choose another output name")
-    if out.suffix != ".toml":
-        raise InputError(f"{out}: a design file name ends in .toml")
+    out = output_path(args.output or calibrated_path(args.design), "-o/--output",
+                      inputs=[args.design, args.measurements], suffixes=(".toml",))
     meas = read_measurements(args.measurements, cables=d.m, min_cycles=1)
     try:
         res = calibrate(d, meas, groups=groups)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..cli import EXIT_OK
+from ..cli import EXIT_OK, output_path
 
 NAME = "iso9283"
 HELP = "ISO 9283 pose accuracy (AP) and repeatability (RP) from measured poses"
@@ -20,14 +20,16 @@ def add_arguments(p) -> None:
 def run(args) -> int:
     from ..iso9283 import pose_characteristics, read_measurements
 
+    out = output_path(args.output, "-o/--output", inputs=[args.measurements], suffixes=(".csv",))
+    html = output_path(args.html, "--html", inputs=[args.measurements, out], suffixes=(".html", ".htm"))
     res = pose_characteristics(read_measurements(args.measurements))
     print("\n".join(res.summary()))
-    if args.output:
-        res.write_csv(args.output)
-        print(f"wrote {args.output}")
-    if args.html:
+    if out:
+        res.write_csv(out)
+        print(f"wrote {out}")
+    if html:
         from ..design import atomic_write_text
 
-        atomic_write_text(args.html, res.figure().to_html(include_plotlyjs=True, full_html=True))
-        print(f"wrote {args.html}")
+        atomic_write_text(html, res.figure().to_html(include_plotlyjs=True, full_html=True))
+        print(f"wrote {html}")
     return EXIT_OK

@@ -5,7 +5,7 @@ from __future__ import annotations
 from importlib import resources
 from pathlib import Path
 
-from ..cli import InputError
+from ..cli import InputError, output_path
 from ..design import atomic_write_text, loads_design
 
 NAME = "new"
@@ -27,8 +27,7 @@ def run(args) -> int:
         raise InputError(f"{path}: a design file name ends in .toml")
     if path.exists() and not args.force:
         raise InputError(f"{path} exists; choose another name or pass --force")
-    if not path.parent.exists():
-        raise InputError(f"{path.parent}: folder does not exist")
+    path = output_path(path, "NAME.toml", suffixes=(".toml",))
     text = starter_text()
     loads_design(text, source="starter template")  # the template itself must stay valid
     atomic_write_text(path, text)

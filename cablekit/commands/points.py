@@ -4,10 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..cli import InputError
+from ..cli import InputError, output_path
 from ..design import load_design
-from ..kinematics import cable_lengths, lengths_to_counts
-from ..statics import tensions_at, tension_limits
 from ..tables import Column, read_table, write_table
 
 NAME = "points"
@@ -42,17 +40,25 @@ def read_poses(design, path) -> np.ndarray:
 
 def pose_report(design, poses):
     """Per pose: lengths (N, m), counts (N, m), TensionResult and a reason text (N,)."""
+    from ..kinematics import cable_lengths, lengths_to_counts, zero_length_cables  # (SymPy: imported only when needed)
+    from ..statics import tension_limits, tensions_at
+
     L = cable_lengths(design, poses)
     counts = np.rint(lengths_to_counts(design, L)).astype(np.int64)
     res = tensions_at(design, poses)
     lim = tension_limits(design)
     names = design.cable_names
+    zero = zero_length_cables(design, poses)
     reasons = []
     for k in range(len(poses)):
         if res.feasible[k]:
             reasons.append("feasible")
             continue
         t = res.tensions[k]
+        if np.any(zero[k]):
+            reasons.append("no solution / singular: cable " + ", ".join(n for n, z in zip(names, zero[k]) if z)
+                           + " has zero length (attachment at its exit)")
+            continue
         if not np.all(np.isfinite(t)):
             reasons.append("no tension balances the load here (outside the wrench-feasible workspace)")
             continue
@@ -65,6 +71,7 @@ def pose_report(design, poses):
 
 
 def run(args) -> int:
+    out = output_path(args.output, "-o/--output", inputs=[args.design, args.points], suffixes=(".csv",))
     d = load_design(args.design)
     poses = read_poses(d, args.points)
     for k, pose in enumerate(poses):
@@ -83,6 +90,6 @@ def run(args) -> int:
                   + [f"tension {n} [N]" for n in names] + ["margin [N]", "feasible", "reason"])
         rows = [list(poses[k]) + list(L[k]) + [int(c) for c in counts[k]] + list(res.tensions[k])
                 + [float(res.margin[k]), "yes" if res.feasible[k] else "no", reasons[k]] for k in range(len(poses))]
-        write_table(args.output, header, rows, comment=f"cablekit points: {d.meta.name}")
-        print(f"wrote {args.output}")
+        write_table(out, header, rows, comment=f"cablekit points: {d.meta.name}")
+        print(f"wrote {out}")
     return 0

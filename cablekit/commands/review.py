@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, output_path
 from ..design import load_design
 
 NAME = "review"
@@ -41,11 +41,10 @@ def run(args) -> int:
     from ..review import RendererError, check_line, find_browser, write_review
 
     date = _check_date(args.date)
-    out = Path(args.output)
-    if out.suffix.lower() not in (".html", ".htm"):
+    if Path(args.output).suffix.lower() not in (".html", ".htm"):
         raise InputError(f"-o/--output: the sheet is HTML; give a file name ending in .html, got {args.output!r}")
-    if out.exists() and out.is_dir():
-        raise InputError(f"-o/--output: {args.output!r} is a folder; give a file name such as review.html")
+    out = output_path(args.output, "-o/--output", inputs=[args.design], create_folder=True)
+    pdf = output_path(args.pdf, "--pdf", inputs=[args.design, out], suffixes=(".pdf",), create_folder=True)
     design = load_design(args.design)  # DesignError -> exit 3 with the list of problems; nothing written
     if args.pdf:
         try:
@@ -58,7 +57,7 @@ def run(args) -> int:
             print(f"  {msg} ...", file=sys.stderr, flush=True)
 
     try:
-        sheet = write_review(design, out, pdf=args.pdf, source_path=args.design, date=date, progress=progress)
+        sheet = write_review(design, out, pdf=pdf, source_path=args.design, date=date, progress=progress)
     except RendererError as exc:
         raise InputError(f"--pdf: {exc} (the HTML sheet was written to {out})") from None
     n = len(sheet.checks)

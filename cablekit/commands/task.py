@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity
+from ..cli import EXIT_CHECK_FAILED, EXIT_OK, InputError, option_quantity, output_path
 from ..design import load_design
 
 NAME = "task"
@@ -39,15 +39,19 @@ def run(args) -> int:
     step = option_quantity(args.step, "length", "--step", positive=True)
     angle_step = option_quantity(args.angle_step, "angle", "--angle-step", positive=True)
     clearance = option_quantity(args.clearance, "length", "--clearance", positive=False)
+    out = output_path(args.output, "-o/--output", inputs=[args.design, args.task], suffixes=(".csv",))
     d = load_design(args.design)
     if d.sections.get("arm") is None:
         raise InputError(f"{args.design} has no [arm] section: the task check needs the tool arm "
                          "(for platform poses alone use 'cablekit points')")
     targets = read_task(d, args.task)  # a TableError becomes exit 3 with its message
-    report = check_task(d, targets, move_step=step, angle_step=angle_step, clearance=clearance,
-                        progress=lambda text: print(f"  ... {text}", file=sys.stderr))
+    try:
+        report = check_task(d, targets, move_step=step, angle_step=angle_step, clearance=clearance,
+                            progress=lambda text: print(f"  ... {text}", file=sys.stderr))
+    except ValueError as exc:  # a sampling beyond the documented limit
+        raise InputError(str(exc)) from None
     print("\n".join(report.summary()))
     if args.output:
-        write_plan(report, args.output)
-        print(f"wrote {args.output}")
+        write_plan(report, out)
+        print(f"wrote {out}")
     return EXIT_OK if report.ok else EXIT_CHECK_FAILED

@@ -4,11 +4,10 @@ from __future__ import annotations
 
 import sys
 import time
-from pathlib import Path
 
 import numpy as np
 
-from ..cli import InputError, option_quantity
+from ..cli import InputError, option_quantity, output_path
 from ..design import load_design
 from ..units import UnitError, parse_vector
 
@@ -83,9 +82,7 @@ def run(args) -> int:
     d = load_design(args.design)
     step = option_quantity(args.step, "length", "--step")
     oris = _orientations(args.orientations, d)
-    out = Path(args.output) if args.output else None
-    if out is not None and not out.parent.is_dir() and str(out.parent):
-        raise InputError(f"-o: folder {str(out.parent)!r} does not exist")
+    out = output_path(args.output, "-o/--output", inputs=[args.design], suffixes=(".npz",))
     bar = None if args.quiet else _Bar()
     try:
         ws = compute_workspace(d, step=step, orientations=oris, progress=bar)
