@@ -64,6 +64,7 @@ motor_rated_torque = "0.315 N*m"
 motor_peak_torque = "0.5 N*m"
 motor_rated_speed = "3000 rpm"
 brake = true
+brake_holding_torque = "0.5 N*m"
 dead_wraps = 3
 [payload]
 mass = "1.0 kg"
