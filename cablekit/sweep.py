@@ -36,7 +36,7 @@ their path in the design file, with units::
     path = "winch.flange_diameter"                  # value = scale * drum + offset
     from = "drum"
     scale = 1.0
-    offset = "28 mm"
+    offset = "38 mm"
 
     [objectives]
     peak_motor_torque = "min"
