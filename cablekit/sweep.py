@@ -1391,7 +1391,7 @@ def _dask_client(scheduler: str | None, workers: int | None):
     if scheduler:
         try:
             return Client(scheduler, timeout="20s"), None
-        except (ValueError, OSError) as exc:  # a malformed address, or nobody there
+        except (ValueError, OSError, TimeoutError, RuntimeError) as exc:  # a malformed address, or nobody there
             raise SweepError(f"scheduler {scheduler!r}: {exc}; expected the address of a running Dask scheduler "
                              "such as tcp://10.0.0.5:8786") from None
     cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1, processes=True,
