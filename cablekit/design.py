@@ -517,6 +517,7 @@ OPTIONAL_SECTIONS: dict[str, str] = {
     "arm": "cablekit.arm:parse_arm_section",
     "errors": "cablekit.accuracy:parse_errors_section",
     "control": "cablekit.workspace:parse_control_section",
+    "sweep": "cablekit.sweep:parse_sweep_section",  # how a design written by 'cablekit best' was chosen
 }
 
 _TOP_KEYS = {"format", "meta", "frame", "platform", "cable", "winch", "winches", "payload", "task",

@@ -1046,6 +1046,8 @@ def _render(design, *, parts, checks, status, missing, digest, date, source_path
     body.append(_section("scenario", "1. Scenario and job", _kv([
         ("rig", _h(meta.name)), ("scenario", _h(meta.scenario or "(not given)")),
         ("job the rig must do", _h(meta.job or "(not given)"))] + ([("notes", _h(meta.notes))] if meta.notes else []))))
+    if design.sections.get("sweep") is not None:  # written by 'cablekit best' from a sweep
+        body.append(_section("chosen", "1a. How this design was chosen", _render_chosen(design.sections["sweep"])))
     body.append(_section("inputs", "2. Inputs", _render_inputs(design)))
     body.append(_section("derived", "3. Derived quantities", _render_quantities(design, parts)))
     body.append(_section("checks", "4. Checks", _render_checks(checks, parts)))
@@ -1405,6 +1407,28 @@ def _render_assumptions(design, parts) -> str:
     out.append("</ul>")
     if warnings:
         out.append("<h3>Notes on this design</h3><ul>" + "".join(f"<li>{_h(w)}</li>" for w in warnings) + "</ul>")
+    return "\n".join(out)
+
+
+def _render_chosen(prov) -> str:
+    """The ``[sweep]`` section of a design chosen from a sweep (see cablekit.sweep)."""
+    out = [_kv([("sweep file", _h(prov.file)), ("sweep file SHA-256", f"<code>{_h(prov.file_hash)}</code>"),
+                ("base design", _h(prov.design_file)), ("base design SHA-256", f"<code>{_h(prov.design_hash)}</code>"),
+                ("search", _h({"grid": "every combination of the parameter values (grid)",
+                               "nsga2": "multi-objective search (NSGA-II, Deb et al. 2002)"}.get(prov.method,
+                                                                                                  prov.method))),
+                ("variants evaluated", f"{prov.variants} ({prov.valid} valid, {prov.meeting_constraints} meeting every "
+                                       f"constraint, {prov.pareto_size} on the Pareto front)"),
+                ("this design", f"variant {prov.variant}: {_h(prov.chosen_by)}"),
+                ("objectives", _h(", ".join(f"{k} ({v})" for k, v in prov.objectives.items()))),
+                ("constraints", _h(", ".join(f"{k} {v}" for k, v in prov.constraints.items()) or "none")),
+                ("evaluation options", _h(prov.options))])]
+    out.append("<h3>Parameter values of this design</h3>")
+    out.append(_table(["parameter", "value"], [[_h(k), _h(v)] for k, v in prov.parameters.items()]))
+    out.append("<h3>Its figures in the sweep</h3>")
+    out.append(_table(["figure", "value"], [[_h(k), _h(v)] for k, v in prov.metrics.items()]))
+    out.append('<p class="notchecked">The sweep used the coarse options above to compare designs; it certifies '
+               "nothing. The checks in section 4 were computed again for this design and govern.</p>")
     return "\n".join(out)
 
 

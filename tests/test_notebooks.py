@@ -26,6 +26,7 @@ EXPECTED = {
     "accuracy_study": ["95 % of builds within", "position error"],
     "arm_and_task": ["weakest servo", "pivot: over a full wrist turn"],
     "review": ["checks, overall", "source of the limit"],
+    "design_sweep": ["on the Pareto front", "feasible share of the task grid"],
 }
 
 

@@ -38,6 +38,7 @@ def _panel_factories():
     from .files import SaveLoadPanel
     from .review_panel import ReviewPanel
     from .rig import RigView
+    from .sweep_explorer import SweepExplorer
     from .workspace_map import WorkspaceMap
 
     return {
@@ -49,10 +50,11 @@ def _panel_factories():
         "review": ("Checks and review sheet", ReviewPanel),
         "equations": ("Equations", EquationsView),
         "files": ("Design file", SaveLoadPanel),
+        "sweep": ("Sweep: Pareto front and parallel coordinates", SweepExplorer),
     }
 
 
-PANELS = ("rig", "workspace", "drive", "errors", "arm", "review", "equations", "files")
+PANELS = ("rig", "workspace", "drive", "errors", "arm", "review", "equations", "files", "sweep")
 
 
 def demo_designs(extra_folders=()) -> dict[str, Path]:
