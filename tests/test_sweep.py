@@ -71,9 +71,14 @@ mass = "1.0 kg"
 [task]
 points = ["1, 1, 0.5 m"]
 speed = "0.2 m/s"
-acceleration = "0.5 m/s^2"
+acceleration = "0 m/s^2"  # quasi-static, so that the margin is the closed form below
 [home]
 position = "1, 1, 0.5 m"
+[control]
+# winches holding exact tensions: the workspace margin is then the static closed form below
+# (length-controlled, a redundant rig's tensions would shift with its length errors)
+winches = "tension"
+tension_accuracy = "0 N"
 """
 MG = 2.5 * G0  # [N]
 T_MIN, T_MAX = 5.0, 15.0  # [N]
