@@ -71,17 +71,18 @@ mass = "1.0 kg"
 [task]
 points = ["1, 1, 0.5 m"]
 speed = "0.2 m/s"
-acceleration = "0 m/s^2"  # quasi-static, so that the margin is the closed form below
+acceleration = "0 m/s^2"
 [home]
 position = "1, 1, 0.5 m"
 [control]
-# winches holding exact tensions: the workspace margin is then the static closed form below
-# (length-controlled, a redundant rig's tensions would shift with its length errors)
 winches = "tension"
-tension_accuracy = "0 N"
+tension_accuracy = "1 N"
 """
 MG = 2.5 * G0  # [N]
 T_MIN, T_MAX = 5.0, 15.0  # [N]
+# quasi-static (task acceleration 0) and tension-controlled winches: the workspace margin is the
+# static one less the stated tension accuracy (cablekit.workspace module notes, [control])
+T_ACCURACY = 1.0  # [N]
 R_H = math.sqrt(2.0)  # horizontal distance from the task point to each exit [m]
 
 HEAD = """\
@@ -312,18 +313,23 @@ def test_grid_finds_the_frame_height_of_largest_tension_margin(rig_folder, tmp_p
     t = res.table
     h = t["param:height"].to_numpy() - 0.5
     T = _hand_tension(h)
-    # every variant's margin is the closed form min(T - t_min, t_max - T) (rounding only)
-    assert np.allclose(t["tension_margin"], np.minimum(T - T_MIN, T_MAX - T), rtol=0, atol=1e-9)
+    # every held variant's margin is the closed form min(T - t_min, t_max - T) less the tension
+    # accuracy (rounding only); where the static margin is negative the pose fails either way
+    static = np.minimum(T - T_MIN, T_MAX - T)
+    held = static >= T_ACCURACY
+    assert held.sum() > 50 and (~held).sum() > 5
+    assert np.allclose(t["tension_margin"][held], static[held] - T_ACCURACY, rtol=0, atol=1e-9)
+    assert (t["tension_margin"][static < 0] < 0).all()
     best, rule = choose_best(t, res.meta)
     assert abs(best["param:height"] - _hand_optimum_height()) <= 0.010 + 1e-12  # half the 20 mm grid step
     assert "largest tension_margin" in rule
 
 
 def test_constraints_keep_exactly_the_heights_the_closed_form_allows(rig_folder, tmp_path):
-    spec = _spec(rig_folder, HEIGHT_GRID + '[constraints]\ntension_margin = ">= 4 N"\n')
+    spec = _spec(rig_folder, HEIGHT_GRID + '[constraints]\ntension_margin = ">= 3 N"\n')
     t = run_sweep(spec, tmp_path / "out", serial=True).table
     T = _hand_tension(t["param:height"].to_numpy() - 0.5)
-    allowed = np.minimum(T - T_MIN, T_MAX - T) >= 4.0  # 9 N <= T <= 11 N (formula above)
+    allowed = np.minimum(T - T_MIN, T_MAX - T) - T_ACCURACY >= 3.0  # 9 N <= T <= 11 N (formula above)
     assert 0 < allowed.sum() < len(t) - 10  # some heights pass, most fail
     assert np.array_equal(t["meets_constraints"].to_numpy(), allowed)
     assert set(t.loc[t["pareto"], "variant"]) <= set(t.loc[allowed, "variant"])
@@ -494,16 +500,31 @@ def test_demo_sweeps_parse():
 
 
 @pytest.mark.slow
-def test_nsga2_on_the_camera_rig_returns_a_pareto_set_each_written_as_a_reviewable_design(tmp_path):
+def test_nsga2_returns_a_pareto_set_each_written_as_a_reviewable_design(rig_folder, tmp_path):
     from cablekit.review import build_review
 
-    src = EXAMPLES / "sweeps" / "workshop_camera_pareto.toml"
-    assert main(["sweep", str(src), "-o", str(tmp_path / "res"), "--serial", "--quiet"]) == 0
+    (rig_folder / "p.toml").write_text(HEAD + """
+[search]
+method = "nsga2"
+population = 8
+generations = 3
+seed = 4
+[[parameter]]
+name = "height"
+path = "frame.exits[*].position[2]"
+range = ["1.2 m", "1.6 m"]
+[objectives]
+tension_margin = "max"
+rope_length = "min"
+[constraints]
+tension_margin = ">= 0 N"
+""")
+    assert main(["sweep", str(rig_folder / "p.toml"), "-o", str(tmp_path / "res"), "--serial", "--quiet"]) == 0
     table, meta = load_results(tmp_path / "res")
     front = table[table["pareto"]]
-    assert len(front) >= 2 and front["meets_constraints"].all()
-    assert (front["coverage"] == 1.0).all() and (front["tension_margin"] >= 1.0).all()
-    F = front[list(meta["objectives"])].to_numpy(float)
+    assert len(front) >= 2 and front["meets_constraints"].all() and (front["tension_margin"] >= 0).all()
+    # below the best height (1.597 m) a higher frame gives more margin and needs more rope: a trade-off
+    F = front[list(meta["objectives"])].to_numpy(float) * [-1.0, 1.0]  # margin is maximised
     assert len(non_dominated_sort(F)) == 1  # no member of the front dominates another
     (tmp_path / "front").mkdir()
     assert main(["best", str(tmp_path / "res"), "--write-front", str(tmp_path / "front")]) == 0
@@ -513,7 +534,7 @@ def test_nsga2_on_the_camera_rig_returns_a_pareto_set_each_written_as_a_reviewab
     assert main(["best", str(tmp_path / "res"), "--write", str(tmp_path / "best.toml")]) == 0
     best = load_design(tmp_path / "best.toml")
     prov = best.sections["sweep"]
-    assert prov.pareto_size == len(front) and "smallest peak_motor_torque" in prov.chosen_by
+    assert prov.pareto_size == len(front) and "largest tension_margin" in prov.chosen_by
     html = build_review(best, date="2026-01-01").html
     assert '<section id="chosen">' in html and "How this design was chosen" in html and prov.file_hash in html
 
