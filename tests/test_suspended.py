@@ -273,10 +273,10 @@ def test_task_check_fails_a_target_the_tilt_puts_off_target(tmp_path):
 
 
 def test_a_cable_going_slack_at_the_real_pose_fails():
-    # a 300 mm ring and a 2 kg load 0.5 m off the axis: at the real (tilted) pose one cable
+    # a 500 mm ring and a 2 kg load 0.5 m off the axis: at the real (tilted) pose one cable
     # carries nothing although the point model holds every cable taut (cables only pull)
     text = NO_ARM
-    ring = 'attachments = ["-0.2598, -0.15, 0 m", "0.2598, -0.15, 0 m", "0, 0.3, 0 m"]'
+    ring = 'attachments = ["-0.433, -0.25, 0 m", "0.433, -0.25, 0 m", "0, 0.5, 0 m"]'
     heavy = 'name = "seedling tray"\nmass = "2 kg"\ncenter_of_mass = "0.5, 0, 0 m"'
     text = text.replace(ONE_SHACKLE, ring).replace('name = "seedling tray"\nmass = "0.5 kg"', heavy)
     # the task box out to y = 1.2 m (the demo's box ends at 0.95 m): the far corner is where it goes slack
