@@ -753,11 +753,9 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
 
 def _design_factor(design) -> tuple[str, float]:
     """(practice key, value) of the rope design factor for the design's use class."""
-    pv = design.practice
-    general = practice_value("rope_design_factor", pv)
-    if design.cable.use_class == "over_people":
-        return "rope_design_factor_over_people", max(general, practice_value("rope_design_factor_over_people", pv))
-    return "rope_design_factor", general
+    from .statics import rope_design_factor
+
+    return rope_design_factor(design)
 
 
 def _freeboard_min(design) -> float:

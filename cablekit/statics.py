@@ -66,6 +66,16 @@ def motor_cable_force(torque, drum_diameter, rope_diameter, gear_ratio, efficien
     return np.asarray(torque, float) * gear_ratio * efficiency / r
 
 
+def rope_design_factor(design) -> tuple[str, float]:
+    """(practice key, value) of the rope design factor in force for the design's use class: the
+    general one, or for ``use_class = "over_people"`` the higher of it and the over-people one."""
+    general = practice_value("rope_design_factor", design.practice)
+    if design.cable.use_class == "over_people":
+        return ("rope_design_factor_over_people",
+                max(general, practice_value("rope_design_factor_over_people", design.practice)))
+    return "rope_design_factor", general
+
+
 def tension_limits(design) -> TensionLimits:
     """Tension limits of every cable: ``t_max = min(stated max_tension, MBF / design factor, motor limit)``.
 
@@ -73,7 +83,7 @@ def tension_limits(design) -> TensionLimits:
     max_tension``, else none; ``t_min`` likewise the cable's own ``min_tension`` or the shared one.
     """
     m = design.m
-    df = practice_value("rope_design_factor", design.practice)
+    df = rope_design_factor(design)[1]
     rope = np.full(m, design.cable.breaking_force / df)
     motor = np.array([motor_cable_force(w.motor_rated_torque, w.drum_diameter, design.cable.diameter,
                                         w.gear_ratio, w.efficiency) for w in design.winches], dtype=float)

@@ -524,6 +524,12 @@ def test_a_load_over_people_needs_the_higher_design_factor(greenhouse):
     assert all(c.status == PASS and c.limit == 5 for c in general)
     assert all(c.status == FAIL and c.limit == 10 and "over people" in c.detail for c in people)
     assert "from memory" in PRACTICE["rope_design_factor_over_people"].source
+    # the workspace's tension window uses the same factor: MBF / 10 over people, MBF / 5 otherwise
+    from cablekit.statics import tension_limits
+
+    assert np.all(tension_limits(rope).rope_limit == pytest.approx(140 / 5, rel=1e-12))
+    over = tension_limits(_changed(rope, "cable", use_class="over_people"))
+    assert np.all(over.rope_limit == pytest.approx(140 / 10, rel=1e-12)) and over.design_factor == 10
     with pytest.raises(DesignError, match=r"cable\.use_class"):
         _changed(greenhouse, "cable", use_class="sometimes")
 
