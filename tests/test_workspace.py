@@ -1067,3 +1067,20 @@ def test_singular_corners_do_not_break_the_error_model():
     model = linear_model(d, q)
     assert model.feasible.tolist() == [False, True]
     assert np.all(np.isfinite(model.sensitivity[1])) and np.all(np.isfinite(model.bias_by_source[1]))
+
+
+def test_exit_contact_warning_covers_the_orientation_range():
+    # the loft rig's box corners put an attachment on its exit at identity orientation; a task
+    # that states its tilt only as a range through zero must be warned about them too
+    from cablekit.commands.check import exit_contact_warnings
+    from cablekit.design import design_from_dict, design_to_dict
+
+    doc = design_to_dict(load_design(LOFT))
+    doc["task"]["orientations"] = ["20, 0, 0 deg"]
+    listed = design_from_dict(doc)
+    assert not any("orientation 0, 0, 0 deg" in w for w in exit_contact_warnings(listed))
+    del doc["task"]["orientations"]
+    doc["task"]["orientation_range"] = {"roll": "-20, 20 deg"}
+    doc["task"]["orientation_samples"] = 3  # -20, 0, +20 deg
+    ranged = design_from_dict(doc)
+    assert sum("orientation 0, 0, 0 deg" in w for w in exit_contact_warnings(ranged)) == 8

@@ -72,9 +72,11 @@ def exit_contact_warnings(d) -> list[str]:
     """Warnings where the task region (box or points, any task orientation) reaches a pose that
     puts an attachment exactly at its exit: a zero-length cable, a singular pose."""
     from ..kinematics import ZERO_LENGTH, positions_at_exits  # (SymPy: imported only when needed)
+    from ..region import task_orientations
 
     t = d.task
-    orient = t.orientations if d.dof == 6 else ((0.0, 0.0, 0.0),)
+    # every orientation the task asks for: the list and the range grid
+    orient = [tuple(o) for o in task_orientations(t)] if d.dof == 6 else [(0.0, 0.0, 0.0)]
     P = positions_at_exits(d, orient)  # (K, m, 3)
     tol = ZERO_LENGTH * max(1.0, float(np.max(np.abs(d.exits))))
     hit = np.zeros(P.shape[:2], bool)
