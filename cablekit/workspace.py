@@ -566,21 +566,14 @@ def _turn_hits(design, qa, qb, pairs) -> np.ndarray:
     # obstacles
     for ob in design.frame.obstacles:
         lo, hi = np.asarray(ob.lower) - radius, np.asarray(ob.upper) + radius
-        e, i = np.nonzero(np.ones((c, design.m), bool) & ~hit[:, None])
-        s0, s1 = np.zeros(len(e)), np.ones(len(e))
-        for _ in range(SWEEP_DEPTH + 1):
-            keep = ~hit[e]
-            e, i, s0, s1 = e[keep], i[keep], s0[keep], s1[keep]
-            if not len(e):
-                break
-            sm = 0.5 * (s0 + s1)
+
+        def obstacle_step(e, i, s0, s1, sm, lo=lo, hi=hi):
             pt = att(e, sm)[np.arange(len(e)), i]
             hit[e[segment_hits_box(a[i], pt, lo, hi)]] = True
             grow = (0.5 * (s1 - s0) * motion[e, i])[:, None]
-            near = segment_hits_box(a[i], pt, lo - grow, hi + grow) & ~hit[e]
-            e, i = np.concatenate([e[near], e[near]]), np.concatenate([i[near], i[near]])
-            s0, s1 = np.concatenate([s0[near], sm[near]]), np.concatenate([sm[near], s1[near]])
-        hit[e] = True
+            return segment_hits_box(a[i], pt, lo - grow, hi + grow)
+
+        _bisect_moves(hit, design.m, obstacle_step)
     # the platform body, in the platform frame: the cable runs from b_i to f(s) = R(s)^T (a_i - p(s)),
     # and f moves at most |a_i - p| (summed angle changes) + |dp| per unit of the move.  On a span, the
     # cables lie in the hull of b_i and the ball around f(middle); a face plane of the body with that
@@ -597,14 +590,7 @@ def _turn_hits(design, qa, qb, pairs) -> np.ndarray:
             q = qa[rows] + s[:, None] * dq[rows]
             return np.einsum("nji,nj->ni", rotation_matrices(q[:, 3:]), a[cab] - q[:, :3])
 
-        e, i = np.nonzero(np.ones((c, design.m), bool) & ~hit[:, None])
-        s0, s1 = np.zeros(len(e)), np.ones(len(e))
-        for _ in range(SWEEP_DEPTH + 1):
-            keep = ~hit[e]
-            e, i, s0, s1 = e[keep], i[keep], s0[keep], s1[keep]
-            if not len(e):
-                break
-            sm = 0.5 * (s0 + s1)
+        def body_step(e, i, s0, s1, sm):
             fm = far(e, i, sm)
             hit[e[segment_hits_box(b[i], fm, -hb, hb)]] = True
             rho = 0.5 * (s1 - s0) * far_motion[e, i]
@@ -613,11 +599,31 @@ def _turn_hits(design, qa, qb, pairs) -> np.ndarray:
             for k in range(3):
                 sep |= (b[i, k] > hb[k]) & (fm[:, k] - rho > hb[k])
                 sep |= (b[i, k] < -hb[k]) & (fm[:, k] + rho < -hb[k])
-            split = ~sep & ~hit[e]
-            e, i = np.concatenate([e[split], e[split]]), np.concatenate([i[split], i[split]])
-            s0, s1 = np.concatenate([s0[split], sm[split]]), np.concatenate([sm[split], s1[split]])
-        hit[e] = True
+            return ~sep
+
+        _bisect_moves(hit, design.m, body_step)
     return hit
+
+
+def _bisect_moves(hit, m, step) -> None:
+    """Bisect every (move, cable) span not yet marked in ``hit`` (moves,) down to SWEEP_DEPTH.
+
+    ``step(e, i, s0, s1, sm)`` gets the spans' moves ``e``, cables ``i``, ends and middles (as
+    fractions of the move), marks the moves it finds hit in ``hit`` and returns the spans that
+    may still hit (they are split in two); what is left after the last level counts as hit
+    (conservative)."""
+    e, i = np.nonzero(np.ones((len(hit), m), bool) & ~hit[:, None])
+    s0, s1 = np.zeros(len(e)), np.ones(len(e))
+    for _ in range(SWEEP_DEPTH + 1):
+        keep = ~hit[e]
+        e, i, s0, s1 = e[keep], i[keep], s0[keep], s1[keep]
+        if not len(e):
+            break
+        sm = 0.5 * (s0 + s1)
+        split = step(e, i, s0, s1, sm) & ~hit[e]
+        e, i = np.concatenate([e[split], e[split]]), np.concatenate([i[split], i[split]])
+        s0, s1 = np.concatenate([s0[split], sm[split]]), np.concatenate([sm[split], s1[split]])
+    hit[e] = True
 
 
 def _sweeps(design, grid, K, node_bad, pairs, turns=None):
