@@ -413,8 +413,23 @@ def test_layout_editor_units_in_every_label(state):
     labels = [w.description for w in (editor.width, editor.depth, editor.height, editor.winch_count,
                                       editor.platform_mass, editor.payload_mass, editor.rope_diameter, editor.rope_mbf,
                                       editor.rope_ea, editor.rope_tmin, editor.drum_diameter, editor.gear_ratio,
-                                      editor.efficiency, editor.rated_torque, editor.peak_torque)]
+                                      editor.efficiency, editor.rated_torque, editor.peak_torque,
+                                      editor.brake_torque, editor.acceleration)]
     assert all(label.endswith("]") and "[" in label for label in labels), labels
+
+
+def test_layout_editor_edits_the_brake_rating_and_the_task_acceleration(state):
+    # the two inputs the brake and acceleration checks judge are editable where the designer works
+    editor = LayoutEditor(state)
+    assert editor.brake_torque.value == pytest.approx(state.design.winches[0].brake_holding_torque)
+    assert not editor.brake_torque.disabled
+    editor.brake_torque.value = 0.8
+    assert all(w.brake_holding_torque == pytest.approx(0.8) for w in state.design.winches)
+    editor.acceleration.value = 0.2
+    assert state.design.task.acceleration == pytest.approx(0.2)
+    editor.acceleration.value = -1.0  # refused by name, the last valid design kept
+    assert state.design.task.acceleration == pytest.approx(0.2)
+    assert "acceleration" in editor.banner.value.lower()
 
 
 def test_a_failing_computation_keeps_the_panel_alive(state, monkeypatch):

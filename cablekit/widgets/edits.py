@@ -156,6 +156,14 @@ def with_winches(design: Design, **fields) -> Design:
     return replace(design, winches=tuple(replace(w, **fields) for w in design.winches))
 
 
+def with_task_acceleration(design: Design, *, acceleration: float) -> Design:
+    """Set the task's largest acceleration in any direction [m/s**2] (0: quasi-static)."""
+    a = float(acceleration)
+    if not (math.isfinite(a) and a >= 0):
+        raise EditError(f"task acceleration: a finite value of at least 0 m/s^2, got {acceleration!r}")
+    return replace(design, task=replace(design.task, acceleration=a))
+
+
 def with_task_box(design: Design, lower, upper) -> Design:
     """Move the task box to ``lower`` .. ``upper`` (x, y, z) [m]."""
     lo = tuple(float(v) for v in lower)

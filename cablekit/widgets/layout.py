@@ -60,8 +60,8 @@ class LayoutEditor(W.VBox):
     * rope: a rope from the catalogue (:func:`cablekit.cables.rope_catalogue`), or diameter
       [mm], minimum breaking force [kN], axial stiffness EA [kN], least taut tension [N];
     * winches (all of them): drum diameter [mm], gear ratio [-], gear efficiency [-], motor
-      rated and peak torque [N·m];
-    * task box corners [m].
+      rated and peak torque [N·m], brake holding torque [N·m] (braked winches only);
+    * task box corners [m] and the task's largest acceleration in any direction [m/s²].
     """
 
     def __init__(self, state: DesignState, **kwargs):
@@ -94,6 +94,8 @@ class LayoutEditor(W.VBox):
         self.efficiency = _number("gear efficiency [-]", w0.efficiency)
         self.rated_torque = _number("motor rated torque [N·m]", w0.motor_rated_torque)
         self.peak_torque = _number("motor peak torque [N·m]", w0.motor_peak_torque)
+        self.brake_torque = _number("brake holding torque [N·m]", w0.brake_holding_torque or 0.0)
+        self.acceleration = _number("task acceleration, any direction [m/s²]", d.task.acceleration)
         self.task_lower = [W.FloatText(layout=_CELL, continuous_update=False) for _ in range(3)]
         self.task_upper = [W.FloatText(layout=_CELL, continuous_update=False) for _ in range(3)]
         self.banner = ProblemsBanner(state)
@@ -113,6 +115,10 @@ class LayoutEditor(W.VBox):
         self.efficiency.observe(lambda c: self._edit("gear efficiency", edits.with_winches, efficiency=c.new), "value")
         self.rated_torque.observe(lambda c: self._edit("motor rated torque", edits.with_winches, motor_rated_torque=c.new), "value")
         self.peak_torque.observe(lambda c: self._edit("motor peak torque", edits.with_winches, motor_peak_torque=c.new), "value")
+        self.brake_torque.observe(lambda c: self._edit("brake holding torque", edits.with_winches,
+                                                       brake_holding_torque=c.new), "value")
+        self.acceleration.observe(lambda c: self._edit("task acceleration", edits.with_task_acceleration,
+                                                       acceleration=c.new), "value")
         for box in (*self.task_lower, *self.task_upper):
             box.observe(self._task_box, "value")
         for box in self.platform_size:
@@ -140,8 +146,8 @@ class LayoutEditor(W.VBox):
                     W.HTML("<span style='font-size:11px'>a catalogue rope sets diameter and breaking force; "
                            "check its axial stiffness and weight per metre</span>")),
             section("Winches (every winch)", self.drum_diameter, self.gear_ratio, self.efficiency,
-                    self.rated_torque, self.peak_torque),
-            section("Task box", task_grid),
+                    self.rated_torque, self.peak_torque, self.brake_torque),
+            section("Task box", task_grid, self.acceleration),
         ]
         super().__init__(children=children, **kwargs)
         self.add_class("ck-layout-editor")
@@ -225,8 +231,11 @@ class LayoutEditor(W.VBox):
                            (self.rope_ea, d.cable.axial_stiffness / 1e3), (self.rope_tmin, d.cable.min_tension),
                            (self.drum_diameter, w0.drum_diameter * 1e3), (self.gear_ratio, w0.gear_ratio),
                            (self.efficiency, w0.efficiency), (self.rated_torque, w0.motor_rated_torque),
-                           (self.peak_torque, w0.motor_peak_torque)):
+                           (self.peak_torque, w0.motor_peak_torque),
+                           (self.brake_torque, w0.brake_holding_torque or 0.0),
+                           (self.acceleration, d.task.acceleration)):
                 _show(box, v)
+            self.brake_torque.disabled = not all(w.brake for w in d.winches)  # a rating needs a brake
             k = self.rope_choice.value
             if k is not None and k >= 0 and (self._ropes[k].diameter, self._ropes[k].breaking_force) != \
                     (d.cable.diameter, d.cable.breaking_force):
