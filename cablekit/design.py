@@ -1179,14 +1179,13 @@ def _check_drums(c: _Collector, d: Design, shared: bool) -> None:
 
 def _grid_fits(c: _Collector, d: Design) -> bool:
     """The task region sampled at ``task.step`` stays within :data:`limits.MAX_GRID_POSES`."""
+    from .region import box_counts, task_orientations
+
     t = d.task
     positions = float(len(t.points))
     if t.box_lower is not None:
-        counts = np.floor((np.array(t.box_upper) - np.array(t.box_lower)) / t.step + 1e-9) + 1
-        positions += float(np.prod(counts))
+        positions += float(np.prod(box_counts(t, t.step)))
     if d.dof == 6:
-        from .region import task_orientations
-
         k = len(task_orientations(t))  # the list and the range's grid
     else:
         k = 1

@@ -62,6 +62,12 @@ def task_orientations(task) -> np.ndarray:
     return out
 
 
+def box_counts(task, step: float) -> np.ndarray:
+    """Grid positions along x, y, z of the task box at ``step`` [m] (3,), as :func:`task_poses`
+    counts them against :data:`MAX_POSES` (floats: a huge count must not overflow)."""
+    return np.floor((np.array(task.box_upper) - np.array(task.box_lower)) / step + 1e-9) + 1
+
+
 def _axis(lo: float, hi: float, step: float) -> np.ndarray:
     n = int(np.floor((hi - lo) / step + 1e-9)) + 1
     if n <= 1:
@@ -95,7 +101,7 @@ def task_poses(design, *, step: float | None = None, orientations=None, include_
     shape = axes = None
     if task.box_lower is not None:
         lo, hi = np.array(task.box_lower), np.array(task.box_upper)
-        counts = np.floor((hi - lo) / step + 1e-9) + 1
+        counts = box_counts(task, step)
         if np.prod(counts) > MAX_POSES:
             raise ValueError(f"a {step * 1e3:g} mm step gives {np.prod(counts):,.0f} positions; "
                              f"use a coarser step (at most {MAX_POSES:,}, cablekit.limits.MAX_GRID_POSES)")
