@@ -1133,9 +1133,10 @@ def _check_rope_weight(c: _Collector, d: Design) -> None:
               f"{d.cable.mass_per_length * d.frame.g * longest:.3g} N): the rope would break under its own weight")
 
 
-def _check_holding(c: _Collector, d: Design, shared: bool) -> None:
-    """Some tension is allowed on every cable (t_max > t_min) and the platform hangs at the home
-    pose with every cable pulling: the home lengths, stretch and sag are all referred to it."""
+def _check_holding(c: _Collector, d: Design) -> None:
+    """The platform hangs at the home pose with every cable pulling and none breaking: the home
+    lengths, stretch and sag are all referred to it.  A rig whose limits allow no tension window
+    (t_max <= t_min) is left to the workspace and drive checks, which fail it."""
     from .statics import tension_limits, tensions_at
 
     lim = tension_limits(d)
@@ -1241,7 +1242,7 @@ def design_from_dict(doc: Mapping, *, source: str | None = None) -> Design:
     _check_drums(c, design, "winch" in doc)
     _check_rope_weight(c, design)
     if not c.problems:
-        _check_holding(c, design, "winch" in doc)
+        _check_holding(c, design)
     if c.problems:
         raise DesignError(c.problems, source)
     # optional sections owned by other modules
