@@ -543,7 +543,7 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
     """
     from .cables import exit_side_tension, smallest_rope
     from .kinematics import cable_vectors, home_lengths, length_per_count
-    from .statics import tension_limits
+    from .statics import rope_design_factor, tension_limits
 
     q, t, source = _task_tensions(design, workspace=workspace, tensions=tensions, poses=poses, step=step,
                                   progress=progress)
@@ -616,7 +616,7 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
             return "design file [practice]" if key in pv else PRACTICE[key].source
 
         # rope design factor (higher when the load may hang over people)
-        df_key, df = _design_factor(design)
+        df_key, df = rope_design_factor(design)
         rope_detail = (f"breaking force {design.cable.breaking_force:.0f} N / {where}"
                        + ("; use class over people" if over_people else ""))
         if math.isfinite(F) and design.cable.breaking_force < df * F:
@@ -751,13 +751,6 @@ def size_drives(design, *, workspace=None, tensions=None, poses=None, step: floa
                        poses_over_rating=int(np.sum(over)))
 
 
-def _design_factor(design) -> tuple[str, float]:
-    """(practice key, value) of the rope design factor for the design's use class."""
-    from .statics import rope_design_factor
-
-    return rope_design_factor(design)
-
-
 def _freeboard_min(design) -> float:
     """Least flange height above the top layer [m]: the greater of its two terms."""
     pv = design.practice
@@ -820,6 +813,8 @@ def design_checks(design, *, workspace=None) -> list[Check]:
 
 def design_assumptions(design, **options) -> list[str]:
     """The modelling assumptions the drivetrain verdicts rest on, one sentence each."""
+    from .statics import rope_design_factor
+
     pv = design.practice
     out = ["Drivetrain: the highest tension each winch must hold comes from the minimum-norm tension distribution "
            "with every cable at least its minimum tension and no upper limit, over every pose of the task grid "
@@ -844,7 +839,7 @@ def design_assumptions(design, **options) -> list[str]:
     cls = rope_class(design.cable.construction)
     out.append(f"Rope: construction {design.cable.construction or '(not given)'!r} read as "
                + (f"class {cls}" if cls != "unknown" else f"unknown, so the strictest ({_STRICTEST}) D/d limits apply")
-               + f"; use class '{design.cable.use_class}', rope design factor {_design_factor(design)[1]:g}.")
+               + f"; use class '{design.cable.use_class}', rope design factor {rope_design_factor(design)[1]:g}.")
     out.append("Fleet angle: each exit pulley is taken in line with the middle of its drum (the rope swings half "
                "the drum width to either side); motor speed and encoder count rate are taken at the task's top "
                "cable speed on the first rope layer.")
